@@ -1,0 +1,184 @@
+//! What one evaluation returns. Field names follow the `stria eval --json` schema
+//! (../shared/design/studies.md); serialising an [`Evaluation`] gives that JSON.
+
+use serde::{Deserialize, Serialize};
+
+/// Inputs echoed in SI units.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct InputsEcho {
+    /// "NaCl", "KCl" or "custom".
+    pub salt: String,
+    /// K.
+    pub temperature_K: f64,
+    /// mol/m^3.
+    pub feed_concentration_mol_m3: f64,
+    /// m.
+    pub gap_m: f64,
+    /// m (the channel length used; in target mode the length found).
+    pub length_m: f64,
+    /// m.
+    pub width_m: f64,
+    /// m/s.
+    pub velocity_m_s: f64,
+    /// "none" or the spacer correlation's name.
+    pub spacer: String,
+    /// m.
+    pub pitch_m: f64,
+    /// -.
+    pub open_fraction: f64,
+    /// V (in current-drive mode, the voltage found).
+    pub cell_pair_voltage_V: f64,
+    /// -.
+    pub cem_transport_number: f64,
+    /// -.
+    pub aem_transport_number: f64,
+}
+
+/// Properties at the feed concentration and temperature.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct PropertiesOut {
+    /// m^2/s.
+    pub salt_diffusivity_m2_s: f64,
+    /// -.
+    pub cation_transport_number: f64,
+    /// kg/m^3.
+    pub density_kg_m3: f64,
+    /// Pa s.
+    pub dynamic_viscosity_Pa_s: f64,
+    /// m^2/s.
+    pub kinematic_viscosity_m2_s: f64,
+    /// S/m.
+    pub conductivity_S_m: f64,
+    /// m.
+    pub debye_length_m: f64,
+    /// V.
+    pub thermal_voltage_V: f64,
+}
+
+/// Diluate channel hydraulics.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct HydraulicsOut {
+    /// m.
+    pub hydraulic_diameter_m: f64,
+    /// -.
+    pub reynolds: f64,
+    /// -.
+    pub schmidt: f64,
+    /// Diluate pressure drop over the channel, Pa.
+    pub pressure_drop_Pa: f64,
+}
+
+/// Mass transfer.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct TransferOut {
+    /// Length-averaged Sherwood number (both walls active).
+    pub sherwood_mean: f64,
+    /// hydraulic_diameter / sherwood_mean, m.
+    pub boundary_layer_thickness_mean_m: f64,
+    /// Peers limiting current density at feed concentration and mean thickness, A/m^2.
+    pub limiting_current_density_feed_A_m2: f64,
+    /// "CEM" or "AEM".
+    pub limiting_membrane: String,
+}
+
+/// Performance.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct PerformanceOut {
+    /// mol/m^3.
+    pub outlet_concentration_mol_m3: f64,
+    /// mol/m^3.
+    pub concentrate_outlet_concentration_mol_m3: f64,
+    /// Diluate flow / (diluate + concentrate flow).
+    pub water_recovery: f64,
+    /// 1 - c_out / c_in.
+    pub salt_removal_fraction: f64,
+    /// A/m^2 of cell-pair area.
+    pub mean_current_density_A_m2: f64,
+    /// A, one cell pair of the given width.
+    pub cell_current_A: f64,
+    /// m^3/s, one cell pair.
+    pub diluate_flow_m3_s: f64,
+    /// Salt removed / (current / F).
+    pub current_efficiency: f64,
+    /// kWh per m^3 of product.
+    pub electrical_energy_kWh_m3: f64,
+    /// kWh per m^3 of product (diluate and concentrate pumps).
+    pub pumping_energy_kWh_m3: f64,
+    /// electrical + pumping, kWh/m^3.
+    pub specific_energy_kWh_m3: f64,
+    /// Ideal-solution minimum work for the same streams, kWh/m^3.
+    pub thermodynamic_minimum_kWh_m3: f64,
+    /// Channel-mean active-area fraction of the patterned membrane, -.
+    pub active_area_fraction: f64,
+    /// Channel-mean natural vortex wavelength, m; None without electroconvection.
+    pub vortex_wavelength_m: Option<f64>,
+}
+
+/// Economics (beyond the JSON schema's required fields).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct EconomicsOut {
+    /// Salt removal rate per membrane area, mol/(m^2 s) (per m^2 of cell pair: CEM + AEM count once each).
+    pub salt_removal_rate_mol_m2_s: f64,
+    /// Membrane area (CEM + AEM) per product flow, m^2 per (m^3/day).
+    pub membrane_area_m2_per_m3_day: f64,
+    /// Membrane cost per production capacity, currency per (m^3/day).
+    pub membrane_cost_per_m3_day: f64,
+    /// Levelised cost of water, currency per m^3 of product.
+    pub levelised_cost_per_m3: f64,
+    /// Membrane area of the whole plant, m^2.
+    pub plant_membrane_area_m2: f64,
+}
+
+/// One validity warning.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Warning {
+    /// Quantity concerned, e.g. "reynolds".
+    pub quantity: String,
+    /// Its value (SI).
+    pub value: f64,
+    /// The bound it crossed.
+    pub bound: f64,
+    /// A sentence for the engineer.
+    pub message: String,
+}
+
+/// Profiles along the channel (on request).
+#[derive(Debug, Clone, PartialEq, Default, Serialize, Deserialize)]
+pub struct Profiles {
+    /// Distance from the inlet, m.
+    pub x_m: Vec<f64>,
+    /// Diluate bulk concentration, mol/m^3.
+    pub diluate_mol_m3: Vec<f64>,
+    /// Concentrate bulk concentration, mol/m^3.
+    pub concentrate_mol_m3: Vec<f64>,
+    /// Local current density, A/m^2.
+    pub current_density_A_m2: Vec<f64>,
+    /// Local limiting current density of the limiting membrane (funnelling included), A/m^2.
+    pub limiting_current_density_A_m2: Vec<f64>,
+    /// Local active-area fraction, -.
+    pub active_area_fraction: Vec<f64>,
+    /// Local CEM diffusion-layer voltage in thermal units, -.
+    pub cem_layer_voltage_thermal: Vec<f64>,
+}
+
+/// The full result of one evaluation.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Evaluation {
+    /// Inputs echoed.
+    pub inputs: InputsEcho,
+    /// Properties.
+    pub properties: PropertiesOut,
+    /// Hydraulics.
+    pub hydraulics: HydraulicsOut,
+    /// Transfer.
+    pub transfer: TransferOut,
+    /// Performance.
+    pub performance: PerformanceOut,
+    /// Economics.
+    pub economics: EconomicsOut,
+    /// Validity warnings.
+    pub warnings: Vec<Warning>,
+    /// Profiles along x, when requested.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub profiles: Option<Profiles>,
+}

@@ -1,0 +1,1 @@
+//! Generic optimisers (see DEVELOPERS.md).

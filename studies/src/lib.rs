@@ -1,0 +1,1 @@
+//! Study files, runs, reports, hand-off and calibration behind the `stria` binary.
