@@ -5,9 +5,11 @@
 #![deny(missing_docs)]
 #![allow(non_snake_case)] // unit suffixes such as `_Pa`, `_V` follow the JSON schema
 
+pub mod constants;
 pub mod design;
 pub mod output;
 
+pub use constants::RomConstants;
 pub use design::*;
 pub use output::*;
 
@@ -37,4 +39,16 @@ pub enum ModelError {
         /// Outlet concentration at the maximum length, mol/m^3.
         outlet_mol_m3: f64,
     },
+}
+
+/// Evaluate one design: along-channel integration of the cell pair, energy, cost, warnings.
+///
+/// Placeholder signature of the contract; the model work replaces the body.
+pub fn evaluate(
+    design: &Design,
+    constants: &RomConstants,
+    options: &Options,
+) -> Result<Evaluation, ModelError> {
+    let _ = (design, constants, options);
+    Err(ModelError::Numerical("model not yet implemented".into()))
 }
