@@ -1,0 +1,1 @@
+//! Acceptance checks: handoff_fit (filled in by the work on this area).

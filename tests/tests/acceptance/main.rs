@@ -1,0 +1,7 @@
+//! stria's acceptance tests: one test binary, one module per area. Every check names the
+//! outside reference it is held to (see ../shared/references.md for the list).
+
+mod handoff_fit;
+mod model_refs;
+mod optimizer_refs;
+mod studies_e2e;

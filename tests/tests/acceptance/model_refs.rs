@@ -1,0 +1,1 @@
+//! Acceptance checks: model_refs (filled in by the work on this area).

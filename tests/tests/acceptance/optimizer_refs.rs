@@ -1,0 +1,1 @@
+//! Acceptance checks: optimizer_refs (filled in by the work on this area).

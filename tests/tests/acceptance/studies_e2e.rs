@@ -1,0 +1,1 @@
+//! Acceptance checks: studies_e2e (filled in by the work on this area).
