@@ -1,0 +1,387 @@
+//! SVG figures through `plotters` (SVG backend only, no font features: text goes into the SVG
+//! as `<text>` elements and the viewer picks the font, so nothing needs system fonts).
+
+use plotters::prelude::*;
+use plotters::style::HSLColor;
+
+/// Width and height of a standard figure, px.
+pub const SIZE: (u32, u32) = (720, 440);
+
+/// How a series is drawn.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Mark {
+    /// A solid line.
+    Line,
+    /// A dashed-looking thin line (drawn lighter).
+    Faint,
+    /// Dots.
+    Points,
+}
+
+/// One named series of (x, y) points.
+#[derive(Debug, Clone)]
+pub struct Series {
+    /// Legend name.
+    pub name: String,
+    /// Points.
+    pub points: Vec<(f64, f64)>,
+    /// How to draw.
+    pub mark: Mark,
+    /// Colour slot (0 = black baseline, then a palette).
+    pub colour: usize,
+}
+
+/// Palette slot to colour: 0 is black (the baseline), then distinct hues.
+pub fn palette(i: usize) -> RGBColor {
+    const P: [RGBColor; 7] = [
+        RGBColor(0, 0, 0),
+        RGBColor(31, 119, 180),
+        RGBColor(214, 39, 40),
+        RGBColor(44, 160, 44),
+        RGBColor(148, 103, 189),
+        RGBColor(255, 127, 14),
+        RGBColor(23, 190, 207),
+    ];
+    P[i % P.len()]
+}
+
+/// Colour for a value scaled to 0..1 (blue to red through green).
+pub fn ramp(t: f64) -> HSLColor {
+    let t = if t.is_finite() { t.clamp(0.0, 1.0) } else { 0.5 };
+    HSLColor(0.66 * (1.0 - t), 0.75, 0.45)
+}
+
+/// Padded range of some values (a unit range around a single value).
+pub fn range(values: impl Iterator<Item = f64>) -> (f64, f64) {
+    let (mut lo, mut hi) = (f64::INFINITY, f64::NEG_INFINITY);
+    for v in values.filter(|v| v.is_finite()) {
+        lo = lo.min(v);
+        hi = hi.max(v);
+    }
+    if !lo.is_finite() {
+        return (0.0, 1.0);
+    }
+    let span = hi - lo;
+    let pad = if span > 0.0 {
+        0.05 * span
+    } else {
+        0.05 * lo.abs().max(1e-12)
+    };
+    (lo - pad, hi + pad)
+}
+
+fn err<E: std::fmt::Debug>(e: E) -> String {
+    format!("drawing failed: {e:?}")
+}
+
+/// A line/point chart of several series with a legend.
+pub fn xy_chart(
+    title: &str,
+    x_label: &str,
+    y_label: &str,
+    series: &[Series],
+) -> Result<String, String> {
+    let xr = range(series.iter().flat_map(|s| s.points.iter().map(|p| p.0)));
+    let yr = range(series.iter().flat_map(|s| s.points.iter().map(|p| p.1)));
+    let mut buf = String::new();
+    {
+        let root = SVGBackend::with_string(&mut buf, SIZE).into_drawing_area();
+        root.fill(&WHITE).map_err(err)?;
+        let mut chart = ChartBuilder::on(&root)
+            .caption(title, ("sans-serif", 18))
+            .margin(12)
+            .x_label_area_size(44)
+            .y_label_area_size(72)
+            .build_cartesian_2d(xr.0..xr.1, yr.0..yr.1)
+            .map_err(err)?;
+        chart
+            .configure_mesh()
+            .x_desc(x_label)
+            .y_desc(y_label)
+            .light_line_style(WHITE)
+            .draw()
+            .map_err(err)?;
+        for s in series {
+            let c = palette(s.colour);
+            match s.mark {
+                Mark::Line | Mark::Faint => {
+                    let style = if s.mark == Mark::Line {
+                        c.stroke_width(2)
+                    } else {
+                        c.mix(0.5).stroke_width(1)
+                    };
+                    chart
+                        .draw_series(LineSeries::new(s.points.iter().copied(), style))
+                        .map_err(err)?
+                        .label(s.name.as_str())
+                        .legend(move |(x, y)| {
+                            PathElement::new(vec![(x, y), (x + 18, y)], c.stroke_width(2))
+                        });
+                }
+                Mark::Points => {
+                    chart
+                        .draw_series(
+                            s.points
+                                .iter()
+                                .map(|&p| Circle::new(p, 3, c.filled())),
+                        )
+                        .map_err(err)?
+                        .label(s.name.as_str())
+                        .legend(move |(x, y)| Circle::new((x + 9, y), 3, c.filled()));
+                }
+            }
+        }
+        chart
+            .configure_series_labels()
+            .position(SeriesLabelPosition::UpperLeft)
+            .background_style(WHITE.mix(0.85))
+            .border_style(BLACK)
+            .draw()
+            .map_err(err)?;
+        root.present().map_err(err)?;
+    }
+    Ok(buf)
+}
+
+/// A scatter of (x, y, colour value) with a colour bar, and an optional marked reference point.
+pub fn scatter_coloured(
+    title: &str,
+    x_label: &str,
+    y_label: &str,
+    colour_label: &str,
+    points: &[(f64, f64, f64)],
+    marked: Option<(f64, f64, &str)>,
+) -> Result<String, String> {
+    let xr = range(points.iter().map(|p| p.0).chain(marked.map(|m| m.0)));
+    let yr = range(points.iter().map(|p| p.1).chain(marked.map(|m| m.1)));
+    let cr = range(points.iter().map(|p| p.2));
+    let mut buf = String::new();
+    {
+        let root = SVGBackend::with_string(&mut buf, SIZE).into_drawing_area();
+        root.fill(&WHITE).map_err(err)?;
+        let (main, side) = root.split_horizontally(SIZE.0 - 110);
+        let mut chart = ChartBuilder::on(&main)
+            .caption(title, ("sans-serif", 18))
+            .margin(12)
+            .x_label_area_size(44)
+            .y_label_area_size(72)
+            .build_cartesian_2d(xr.0..xr.1, yr.0..yr.1)
+            .map_err(err)?;
+        chart
+            .configure_mesh()
+            .x_desc(x_label)
+            .y_desc(y_label)
+            .light_line_style(WHITE)
+            .draw()
+            .map_err(err)?;
+        let t = |v: f64| (v - cr.0) / (cr.1 - cr.0);
+        chart
+            .draw_series(
+                points
+                    .iter()
+                    .map(|&(x, y, v)| Circle::new((x, y), 4, ramp(t(v)).filled())),
+            )
+            .map_err(err)?;
+        if let Some((x, y, name)) = marked {
+            chart
+                .draw_series(std::iter::once(Cross::new((x, y), 7, BLACK.stroke_width(3))))
+                .map_err(err)?
+                .label(name)
+                .legend(|(x, y)| Cross::new((x + 8, y), 5, BLACK.stroke_width(2)));
+            chart
+                .configure_series_labels()
+                .position(SeriesLabelPosition::UpperRight)
+                .background_style(WHITE.mix(0.85))
+                .border_style(BLACK)
+                .draw()
+                .map_err(err)?;
+        }
+        // colour bar: 20 steps from the low (bottom) to the high (top) end
+        let bar = side.margin(60, 60, 10, 50);
+        let (_, h) = bar.dim_in_pixel();
+        let steps = 20;
+        for k in 0..steps {
+            let y0 = (h as f64 * (1.0 - (k + 1) as f64 / steps as f64)) as i32;
+            let y1 = (h as f64 * (1.0 - k as f64 / steps as f64)) as i32;
+            let c = ramp((k as f64 + 0.5) / steps as f64);
+            bar.draw(&Rectangle::new([(0, y0), (18, y1)], c.filled()))
+                .map_err(err)?;
+        }
+        let style = ("sans-serif", 12).into_font().color(&BLACK);
+        bar.draw(&Text::new(fmt_num(cr.1), (0, -16), style.clone()))
+            .map_err(err)?;
+        bar.draw(&Text::new(fmt_num(cr.0), (0, h as i32 + 4), style.clone()))
+            .map_err(err)?;
+        side.draw(&Text::new(colour_label.to_string(), (4, 30), style))
+            .map_err(err)?;
+        root.present().map_err(err)?;
+    }
+    Ok(buf)
+}
+
+/// Number for a label: 4 significant figures.
+pub fn fmt_num(v: f64) -> String {
+    if !v.is_finite() {
+        return "-".into();
+    }
+    if v == 0.0 {
+        return "0".into();
+    }
+    let a = v.abs();
+    if (1e-3..1e5).contains(&a) {
+        let decimals = (3 - a.log10().floor() as i32).max(0) as usize;
+        let s = format!("{v:.decimals$}");
+        if s.contains('.') {
+            s.trim_end_matches('0').trim_end_matches('.').to_string()
+        } else {
+            s
+        }
+    } else {
+        format!("{v:.3e}")
+    }
+}
+
+/// One membrane pattern drawn to scale: a window of the membrane seen from the side, with
+/// conducting and inert stripes, the diffusion-layer thickness and the vortex wavelength as
+/// bars of true length. Lengths in m; drawn in micrometres.
+pub struct PatternFigure<'a> {
+    /// Title.
+    pub title: &'a str,
+    /// Window length, m.
+    pub window_m: f64,
+    /// Height shown above the membrane, m.
+    pub height_m: f64,
+    /// Conducting stripes [x0, x1], m.
+    pub conducting: &'a [[f64; 2]],
+    /// Diffusion-layer thickness, m.
+    pub delta_m: f64,
+    /// Vortex wavelength, m (None: no vortices).
+    pub wavelength_m: Option<f64>,
+}
+
+/// Draw a [`PatternFigure`] (equal scales on both axes).
+pub fn pattern(fig: &PatternFigure) -> Result<String, String> {
+    let um = 1e6;
+    let w = fig.window_m * um;
+    let hgt = fig.height_m * um;
+    // equal aspect: plot width fixed, height follows (bounded for very long windows)
+    let plot_w = 620.0;
+    let plot_h = (plot_w * hgt / w).clamp(80.0, 420.0);
+    let size = (plot_w as u32 + 100, plot_h as u32 + 110);
+    let mut buf = String::new();
+    {
+        let root = SVGBackend::with_string(&mut buf, size).into_drawing_area();
+        root.fill(&WHITE).map_err(err)?;
+        let mut chart = ChartBuilder::on(&root)
+            .caption(fig.title, ("sans-serif", 16))
+            .margin(10)
+            .x_label_area_size(40)
+            .y_label_area_size(60)
+            .build_cartesian_2d(0.0..w, -0.06 * hgt..hgt)
+            .map_err(err)?;
+        chart
+            .configure_mesh()
+            .x_desc("along the flow (um)")
+            .y_desc("height (um)")
+            .disable_mesh()
+            .draw()
+            .map_err(err)?;
+        // the membrane: inert (grey) everywhere, conducting stripes on top (dark blue)
+        let base = -0.05 * hgt;
+        chart
+            .draw_series(std::iter::once(Rectangle::new(
+                [(0.0, base), (w, 0.0)],
+                RGBColor(190, 190, 190).filled(),
+            )))
+            .map_err(err)?
+            .label("inert stripe")
+            .legend(|(x, y)| Rectangle::new([(x, y - 4), (x + 14, y + 4)], RGBColor(190, 190, 190).filled()));
+        chart
+            .draw_series(fig.conducting.iter().map(|s| {
+                Rectangle::new([(s[0] * um, base), (s[1] * um, 0.0)], RGBColor(31, 80, 160).filled())
+            }))
+            .map_err(err)?
+            .label("conducting stripe")
+            .legend(|(x, y)| Rectangle::new([(x, y - 4), (x + 14, y + 4)], RGBColor(31, 80, 160).filled()));
+        // diffusion layer edge
+        let d = fig.delta_m * um;
+        chart
+            .draw_series(LineSeries::new(vec![(0.0, d), (w, d)], RGBColor(214, 39, 40).stroke_width(2)))
+            .map_err(err)?
+            .label(format!("diffusion layer, delta = {} um", fmt_num(d)))
+            .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 14, y)], RGBColor(214, 39, 40).stroke_width(2)));
+        // vortex pairs: one wavelength holds two counter-rotating rolls of diameter lambda/2
+        if let Some(lv) = fig.wavelength_m {
+            let l = lv * um;
+            let r = 0.25 * l;
+            let n = (w / l).floor().max(1.0) as usize;
+            let mut rolls = Vec::new();
+            for k in 0..(2 * n) {
+                let cx = (k as f64 + 0.5) * 0.5 * l;
+                if cx + r > w * 1.0001 {
+                    break;
+                }
+                let pts: Vec<(f64, f64)> = (0..=48)
+                    .map(|j| {
+                        let a = j as f64 / 48.0 * std::f64::consts::TAU;
+                        (cx + r * a.cos(), r + r * a.sin())
+                    })
+                    .collect();
+                rolls.push(pts);
+            }
+            chart
+                .draw_series(rolls.into_iter().map(|pts| {
+                    PathElement::new(pts, RGBColor(44, 160, 44).stroke_width(1))
+                }))
+                .map_err(err)?
+                .label(format!("vortex wavelength = {} um (pair of rolls)", fmt_num(l)))
+                .legend(|(x, y)| Circle::new((x + 7, y), 5, RGBColor(44, 160, 44).stroke_width(1)));
+        }
+        chart
+            .configure_series_labels()
+            .position(SeriesLabelPosition::UpperRight)
+            .background_style(WHITE.mix(0.85))
+            .border_style(BLACK)
+            .draw()
+            .map_err(err)?;
+        root.present().map_err(err)?;
+    }
+    Ok(buf)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn charts_are_well_formed_xml() {
+        let s = Series {
+            name: "a & b".into(),
+            points: vec![(0.0, 1.0), (1.0, 2.0)],
+            mark: Mark::Line,
+            colour: 1,
+        };
+        let svg = xy_chart("t <1>", "x", "y", &[s]).unwrap();
+        roxmltree::Document::parse(&svg).unwrap();
+        let svg = scatter_coloured("t", "x", "y", "c", &[(0.0, 1.0, 2.0), (1.0, 0.0, 3.0)], Some((0.5, 0.5, "base"))).unwrap();
+        roxmltree::Document::parse(&svg).unwrap();
+        let svg = pattern(&PatternFigure {
+            title: "p",
+            window_m: 4e-4,
+            height_m: 2e-4,
+            conducting: &[[0.0, 5e-5], [1e-4, 1.5e-4]],
+            delta_m: 1e-4,
+            wavelength_m: Some(1.2e-4),
+        })
+        .unwrap();
+        roxmltree::Document::parse(&svg).unwrap();
+    }
+
+    #[test]
+    fn numbers_keep_four_significant_figures() {
+        assert_eq!(fmt_num(0.123456), "0.1235");
+        assert_eq!(fmt_num(1234.7), "1235");
+        assert_eq!(fmt_num(2.5e-7), "2.500e-7");
+        assert_eq!(fmt_num(0.5), "0.5");
+    }
+}
