@@ -7,7 +7,12 @@
 
 pub mod constants;
 pub mod design;
+pub mod hydraulics;
+pub mod interface;
+pub mod numerics;
 pub mod output;
+pub mod properties;
+pub mod transfer;
 
 pub use constants::RomConstants;
 pub use design::*;

@@ -1,0 +1,441 @@
+//! One diluate-side membrane boundary layer: the current-voltage law of the reduced-order
+//! model (ROM), classic and overlimiting.
+//!
+//! In thermal units v (layer voltage / V_T), with i_lim the Peers limit of the homogeneous
+//! membrane at the local delta:
+//!
+//! - funnelling: i_lim,het = i_lim Phi, Phi = f + (1 - f) / (1 + (pitch / (s_F delta))^k_F)
+//!   (f = open fraction; Phi -> 1 for pitch << delta, -> f for pitch >> delta);
+//! - classic branch: i_cl = i_lim,het (1 - exp(-v/2)) (ideal membrane, binary salt);
+//! - vortex wavelength: lambda_v = a_lambda delta (v / v_c)^q for v > v_c;
+//! - active-area fraction: alpha(v) = alpha_0' + (alpha_max' - alpha_0') L P(f), with the
+//!   Gaussian lock-in window L = exp(-ln(pitch/lambda_v)^2 / (2 sigma^2)), the pinning
+//!   efficiency P(f) = (f/phi*)^(kappa phi*) ((1-f)/(1-phi*))^(kappa (1-phi*)) (zero for
+//!   f = 1, one at phi*), and alpha_0' = min(alpha_0, f), alpha_max' = min(alpha_max, f), so
+//!   alpha never exceeds f;
+//! - overlimiting current (n = 1): i_ec = i_lim (g / alpha_0) integral_{v_c}^{v} alpha(w) dw,
+//!   in closed form with error functions; for n != 1 the model uses
+//!   i_ec = i_lim (g / alpha_0) (v - v_c)^(n-1) integral alpha dw, i.e. the mean alpha over
+//!   [v_c, v] times the unpatterned law i_lim g (v - v_c)^n. Both are products/integrals of
+//!   positive increasing factors, so i(v) is strictly increasing for every admissible input;
+//! - water splitting: a share ws(v) = (v - v_ws) / (v - v_ws + s_ws) of the current is carried
+//!   by H+/OH- above v_ws (it desalinates nothing).
+
+use crate::constants::RomConstants;
+use crate::design::{Salt, Spacer};
+use crate::hydraulics::channel_flow;
+use crate::numerics::newton_bracketed;
+use crate::properties::properties;
+use crate::transfer::{peers_limit, SherwoodModel};
+
+/// Which membrane a layer sits on.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
+pub enum MembraneKind {
+    /// Cation-exchange membrane (counter-ion: the cation).
+    Cem,
+    /// Anion-exchange membrane (counter-ion: the anion).
+    Aem,
+}
+
+/// Funnelling factor Phi = i_lim,het / i_lim of a striped surface.
+///
+/// Phi = f + (1 - f) / (1 + (pitch / (s_F delta))^k_F). Limits (Rubinstein, Staude and Kedem,
+/// Desalination 69 (1988) 101; from memory): Phi -> 1 for pitch << delta, Phi -> f for
+/// pitch >> delta. With k_F = 1 and s_F = 4.5 the small-pitch deficit 1 - Phi matches the
+/// strip-constriction estimate (pitch / (pi delta)) ln(1 / sin(pi f / 2)) at f = 0.5.
+#[inline]
+pub fn funnelling(pitch_m: f64, delta_m: f64, open_fraction: f64, k: &RomConstants) -> f64 {
+    if open_fraction >= 1.0 {
+        return 1.0;
+    }
+    let x = (pitch_m / (k.funnel_scale * delta_m)).powf(k.funnel_exponent);
+    open_fraction + (1.0 - open_fraction) / (1.0 + x)
+}
+
+/// Pinning efficiency P(f) in [0, 1]: zero for a homogeneous surface (f = 1) and for f -> 0,
+/// one at f = phi*: P = (f/phi*)^(kappa phi*) ((1-f)/(1-phi*))^(kappa (1-phi*)).
+#[inline]
+pub fn pinning_efficiency(open_fraction: f64, k: &RomConstants) -> f64 {
+    let f = open_fraction;
+    if f <= 0.0 || f >= 1.0 {
+        return 0.0;
+    }
+    let p = k.best_open_fraction;
+    let kp = k.pinning_sharpness;
+    (kp * p * (f / p).ln() + kp * (1.0 - p) * ((1.0 - f) / (1.0 - p)).ln()).exp()
+}
+
+/// Share of the current carried by water-splitting products at layer voltage `v`:
+/// 0 below the onset `v_ws`, (v - v_ws) / (v - v_ws + s_ws) above.
+#[inline]
+pub fn water_splitting_share(v: f64, onset: f64, scale: f64) -> f64 {
+    if v <= onset {
+        0.0
+    } else {
+        (v - onset) / (v - onset + scale)
+    }
+}
+
+/// erf(b) - erf(a) for a <= b without cancellation in the tails.
+#[inline]
+fn erf_diff(a: f64, b: f64) -> f64 {
+    if a >= 0.0 {
+        libm::erfc(a) - libm::erfc(b)
+    } else if b <= 0.0 {
+        libm::erfc(-b) - libm::erfc(-a)
+    } else {
+        libm::erf(b) - libm::erf(a)
+    }
+}
+
+/// The current-voltage law of one layer, with everything that does not depend on v
+/// precomputed (one per membrane per point along the channel).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Layer {
+    /// Peers limit of the homogeneous membrane, A/m^2.
+    pub i_lim: f64,
+    /// Funnelling factor Phi, -.
+    pub phi: f64,
+    /// Heterogeneous limit i_lim Phi, A/m^2.
+    pub i_het: f64,
+    /// Diffusion-layer thickness, m.
+    pub delta_m: f64,
+    /// Onset v_c, thermal units.
+    v_c: f64,
+    /// i_lim g / alpha_0, A/m^2 per thermal unit.
+    gain: f64,
+    /// Exponent n.
+    n: f64,
+    /// alpha_0' = min(alpha_0, f).
+    a0: f64,
+    /// (alpha_max' - alpha_0') P(f).
+    amp: f64,
+    /// ln(pitch / (a_lambda delta)).
+    z0: f64,
+    /// q.
+    q: f64,
+    /// sigma.
+    sigma: f64,
+    /// Prefactor of the lock-in integral: (v_c sigma / q) sqrt(pi/2) exp(z0/q + sigma^2/(2 q^2)).
+    j_pref: f64,
+    /// erf argument at v_c.
+    b_c: f64,
+    /// Vortex wavelength at onset a_lambda delta, m.
+    lambda0: f64,
+    /// Classic current at onset, A/m^2.
+    i_onset: f64,
+}
+
+impl Layer {
+    /// Build the law of a layer of thickness `delta_m` whose homogeneous Peers limit is
+    /// `i_lim`, on a surface of stripe `pitch_m` and `open_fraction` (1 = unpatterned).
+    pub fn new(
+        i_lim: f64,
+        delta_m: f64,
+        pitch_m: f64,
+        open_fraction: f64,
+        k: &RomConstants,
+    ) -> Self {
+        let f = open_fraction.min(1.0);
+        let phi = funnelling(pitch_m, delta_m, f, k);
+        let a0 = k.alpha_0.min(f);
+        let amax = k.alpha_max.min(f);
+        let amp = (amax - a0) * pinning_efficiency(f, k);
+        let lambda0 = k.wavelength_prefactor * delta_m;
+        let z0 = (pitch_m / lambda0).ln();
+        let (q, sigma, v_c) = (k.wavelength_exponent, k.lockin_width, k.onset_voltage);
+        let j_pref = if amp != 0.0 {
+            v_c * sigma / q
+                * (0.5 * std::f64::consts::PI).sqrt()
+                * (z0 / q + sigma * sigma / (2.0 * q * q)).exp()
+        } else {
+            0.0
+        };
+        let b_c = -(z0 + sigma * sigma / q) / (sigma * std::f64::consts::SQRT_2);
+        let i_het = i_lim * phi;
+        Layer {
+            i_lim,
+            phi,
+            i_het,
+            delta_m,
+            v_c,
+            gain: i_lim * k.overlimiting_conductance / k.alpha_0,
+            n: k.overlimiting_exponent,
+            a0,
+            amp,
+            z0,
+            q,
+            sigma,
+            j_pref,
+            b_c,
+            lambda0,
+            i_onset: i_het * (1.0 - (-0.5 * v_c).exp()),
+        }
+    }
+
+    /// Onset voltage v_c, thermal units.
+    pub fn onset(&self) -> f64 {
+        self.v_c
+    }
+
+    /// Active-area fraction alpha at layer voltage `v` (its onset value below onset).
+    #[inline]
+    pub fn alpha(&self, v: f64) -> f64 {
+        if self.amp == 0.0 {
+            return self.a0;
+        }
+        let s = (v.max(self.v_c) / self.v_c).ln();
+        let z = self.z0 - self.q * s;
+        self.a0 + self.amp * (-z * z / (2.0 * self.sigma * self.sigma)).exp()
+    }
+
+    /// Natural vortex wavelength at `v`, m; None at or below onset.
+    #[inline]
+    pub fn wavelength(&self, v: f64) -> Option<f64> {
+        (v > self.v_c).then(|| self.lambda0 * (v / self.v_c).powf(self.q))
+    }
+
+    /// integral_{v_c}^{v} alpha(w) dw (closed form), for v > v_c.
+    #[inline]
+    fn alpha_integral(&self, v: f64) -> f64 {
+        let base = self.a0 * (v - self.v_c);
+        if self.amp == 0.0 {
+            return base;
+        }
+        let b = (self.q * (v / self.v_c).ln() - self.z0 - self.sigma * self.sigma / self.q)
+            / (self.sigma * std::f64::consts::SQRT_2);
+        base + self.amp * self.j_pref * erf_diff(self.b_c, b)
+    }
+
+    /// Overlimiting (electroconvective) current density at `v`, A/m^2 (0 at or below onset).
+    #[inline]
+    pub fn overlimiting(&self, v: f64) -> f64 {
+        if v <= self.v_c {
+            return 0.0;
+        }
+        let i1 = self.alpha_integral(v);
+        if self.n == 1.0 {
+            self.gain * i1
+        } else {
+            self.gain * i1 * (v - self.v_c).powf(self.n - 1.0)
+        }
+    }
+
+    /// Current density and its derivative di/dv at layer voltage `v` (thermal units).
+    #[inline]
+    pub fn current(&self, v: f64) -> (f64, f64) {
+        let e = (-0.5 * v).exp();
+        let mut i = self.i_het * (1.0 - e);
+        let mut di = 0.5 * self.i_het * e;
+        if v > self.v_c {
+            let alpha = self.alpha(v);
+            let i1 = self.alpha_integral(v);
+            if self.n == 1.0 {
+                i += self.gain * i1;
+                di += self.gain * alpha;
+            } else {
+                let dv = v - self.v_c;
+                let pw = dv.powf(self.n - 1.0);
+                i += self.gain * i1 * pw;
+                di += self.gain * (alpha * pw + i1 * (self.n - 1.0) * pw / dv);
+            }
+        }
+        (i, di)
+    }
+
+    /// Layer voltage (thermal units) that carries current density `i` >= 0, and di/dv there.
+    ///
+    /// Closed form on the classic branch (v = -2 ln(1 - i / i_lim,het) while below onset);
+    /// above onset a bracketed Newton solve on [v_c, v_hi], with v_hi from the lower bound
+    /// i >= i_onset + i_lim (g/alpha_0) min(alpha) (v - v_c)^n. Infinite when the current
+    /// cannot be carried (g = 0 and i >= i_lim,het).
+    pub fn voltage(&self, i: f64, guess: f64) -> (f64, f64) {
+        if i <= 0.0 {
+            return (0.0, 0.5 * self.i_het);
+        }
+        if i <= self.i_onset {
+            let r = 1.0 - i / self.i_het;
+            return (-2.0 * r.ln(), 0.5 * self.i_het * r);
+        }
+        let a_min = self.a0.min(self.a0 + self.amp);
+        let slope = self.gain * a_min;
+        if slope <= 0.0 {
+            return (f64::INFINITY, 0.0);
+        }
+        let v_hi = self.v_c + ((i - self.i_onset) / slope).powf(1.0 / self.n) * 1.000_001 + 1e-9;
+        let (v, _) = newton_bracketed(
+            |v| {
+                let (iv, d) = self.current(v);
+                (iv - i, d)
+            },
+            self.v_c,
+            v_hi,
+            guess,
+            1e-11 * (1.0 + v_hi),
+        );
+        let (_, d) = self.current(v);
+        (v, d)
+    }
+}
+
+/// Conditions at one diluate-side membrane interface (what a CFD case simulates).
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct InterfaceConditions {
+    /// Dissolved salt.
+    pub salt: Salt,
+    /// Temperature, K.
+    pub temperature_k: f64,
+    /// Bulk concentration, mol/m^3.
+    pub concentration_mol_m3: f64,
+    /// Mean channel velocity, m/s.
+    pub velocity_m_s: f64,
+    /// Channel gap, m.
+    pub gap_m: f64,
+    /// Distance from the channel inlet, m (sets the local delta).
+    pub position_m: f64,
+    /// Stripe pitch, m.
+    pub pitch_m: f64,
+    /// Conducting share of the pitch (1 = unpatterned), -.
+    pub open_fraction: f64,
+    /// Counter-ion transport number in the membrane, -.
+    pub membrane_transport_number: f64,
+    /// Channel filling.
+    pub spacer: Spacer,
+    /// Which membrane (sets the solution transport number of the counter-ion).
+    pub membrane: MembraneKind,
+}
+
+/// State of one interface at a given layer voltage.
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct InterfaceState {
+    /// Current density, A/m^2.
+    pub current_density_a_m2: f64,
+    /// Peers limit of the homogeneous membrane at the local delta, A/m^2.
+    pub limiting_current_density_a_m2: f64,
+    /// Funnelling-reduced limit i_lim Phi, A/m^2.
+    pub heterogeneous_limit_a_m2: f64,
+    /// Active-area fraction alpha (its onset value below onset), -.
+    pub active_area_fraction: f64,
+    /// Natural vortex wavelength, m; None at or below onset.
+    pub vortex_wavelength_m: Option<f64>,
+    /// Local diffusion-layer thickness delta, m.
+    pub boundary_layer_thickness_m: f64,
+    /// Overlimiting (electroconvective) part of the current density, A/m^2.
+    pub overlimiting_current_density_a_m2: f64,
+    /// Share of the current carried by water-splitting products, -.
+    pub water_splitting_share: f64,
+}
+
+impl InterfaceConditions {
+    /// The layer law at these conditions (delta from the local Sherwood number).
+    pub fn layer(&self, k: &RomConstants) -> Layer {
+        let p = properties(self.salt, self.temperature_k, self.concentration_mol_m3);
+        let flow = channel_flow(
+            self.spacer,
+            self.gap_m,
+            self.position_m,
+            self.velocity_m_s,
+            p.density_kg_m3,
+            p.dynamic_viscosity_pa_s,
+            p.salt_diffusivity_m2_s,
+        );
+        let sh = SherwoodModel::new(self.spacer, &flow);
+        let delta = sh.delta(self.position_m);
+        let t = match self.membrane {
+            MembraneKind::Cem => p.cation_transport_number,
+            MembraneKind::Aem => 1.0 - p.cation_transport_number,
+        };
+        let i_lim = peers_limit(
+            p.salt_diffusivity_m2_s,
+            self.concentration_mol_m3,
+            self.membrane_transport_number,
+            t,
+            delta,
+        );
+        Layer::new(i_lim, delta, self.pitch_m, self.open_fraction, k)
+    }
+}
+
+/// Solve one interface at diffusion-layer voltage `layer_voltage_thermal` (in units of RT/F).
+pub fn solve(
+    c: &InterfaceConditions,
+    layer_voltage_thermal: f64,
+    k: &RomConstants,
+) -> InterfaceState {
+    let layer = c.layer(k);
+    let v = layer_voltage_thermal;
+    let (i, _) = layer.current(v);
+    let onset = match c.membrane {
+        MembraneKind::Cem => k.water_splitting_onset,
+        MembraneKind::Aem => k.water_splitting_onset_aem,
+    };
+    InterfaceState {
+        current_density_a_m2: i,
+        limiting_current_density_a_m2: layer.i_lim,
+        heterogeneous_limit_a_m2: layer.i_het,
+        active_area_fraction: layer.alpha(v),
+        vortex_wavelength_m: layer.wavelength(v),
+        boundary_layer_thickness_m: layer.delta_m,
+        overlimiting_current_density_a_m2: layer.overlimiting(v),
+        water_splitting_share: water_splitting_share(v, onset, k.water_splitting_scale),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::numerics::gauss_legendre;
+
+    fn patterned(k: &RomConstants, pitch: f64, f: f64) -> Layer {
+        Layer::new(100.0, 1e-4, pitch, f, k)
+    }
+
+    #[test]
+    fn closed_form_integral_matches_quadrature() {
+        let k = RomConstants::default();
+        for (pitch, f) in [(1e-4, 0.5), (3e-4, 0.3), (2e-5, 0.8), (5e-3, 0.5)] {
+            let l = patterned(&k, pitch, f);
+            for v in [21.0, 30.0, 60.0, 150.0] {
+                // 40 panels of 12-point Gauss-Legendre: reference to ~1e-12.
+                let n = 40;
+                let h = (v - l.v_c) / n as f64;
+                let mut q = 0.0;
+                for j in 0..n {
+                    let a = l.v_c + j as f64 * h;
+                    q += gauss_legendre(a, a + h, |w| l.alpha(w));
+                }
+                let c = l.alpha_integral(v);
+                assert!((c - q).abs() < 1e-9 * q.abs().max(1.0), "{c} vs {q}");
+            }
+        }
+    }
+
+    #[test]
+    fn derivative_matches_finite_difference() {
+        let mut k = RomConstants::default();
+        for n in [1.0, 1.7] {
+            k.overlimiting_exponent = n;
+            let l = patterned(&k, 1.5e-4, 0.5);
+            for v in [5.0, 25.0, 45.0, 90.0] {
+                let h = 1e-5;
+                let fd = (l.current(v + h).0 - l.current(v - h).0) / (2.0 * h);
+                let (_, d) = l.current(v);
+                assert!(
+                    (fd - d).abs() < 1e-5 * d.abs().max(1.0),
+                    "n={n} v={v}: {fd} vs {d}"
+                );
+            }
+        }
+    }
+
+    #[test]
+    fn voltage_inverts_current() {
+        let k = RomConstants::default();
+        let l = patterned(&k, 1.2e-4, 0.5);
+        for v in [0.5, 3.0, 19.0, 20.5, 35.0, 80.0, 300.0] {
+            let (i, _) = l.current(v);
+            let (w, _) = l.voltage(i, 30.0);
+            assert!((w - v).abs() < 1e-8 * v.max(1.0), "{v} -> {i} -> {w}");
+        }
+    }
+}
