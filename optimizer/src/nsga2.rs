@@ -1,0 +1,282 @@
+//! NSGA-II (Deb, Pratap, Agarwal and Meyarivan, "A fast and elitist multiobjective genetic
+//! algorithm: NSGA-II", IEEE Trans. Evol. Comput. 6 (2002) 182, doi:10.1109/4235.996017):
+//! binary crowded tournament, simulated binary crossover (Deb and Agrawal, Complex Systems 9
+//! (1995) 115), polynomial mutation, constrained domination, elitist survival by rank and
+//! crowding distance, and elimination of exact duplicate offspring.
+
+use crate::doe::{self, InitialDesign};
+use crate::dominance::{crowded_compare, crowding_distance, non_dominated_sort, rank_and_crowding};
+use crate::problem::{Evaluated, Variable};
+use rand::Rng;
+use rand_chacha::ChaCha8Rng;
+use serde::{Deserialize, Serialize};
+use std::collections::HashSet;
+
+/// Settings of NSGA-II. [`Default`] gives the usual settings of Deb et al. (2002).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(default)]
+pub struct Nsga2Config {
+    /// Population size N (at least 4).
+    pub population_size: usize,
+    /// Probability that a pair of parents is recombined by SBX (0.9).
+    pub crossover_probability: f64,
+    /// Distribution index of simulated binary crossover (20).
+    pub crossover_eta: f64,
+    /// Distribution index of polynomial mutation (20).
+    pub mutation_eta: f64,
+    /// Per-variable mutation probability; `None` means 1/n for n variables.
+    pub mutation_probability: Option<f64>,
+    /// How the initial population is drawn.
+    pub initial: InitialDesign,
+}
+
+impl Default for Nsga2Config {
+    fn default() -> Self {
+        Nsga2Config {
+            population_size: 100,
+            crossover_probability: 0.9,
+            crossover_eta: 20.0,
+            mutation_eta: 20.0,
+            mutation_probability: None,
+            initial: InitialDesign::LatinHypercube,
+        }
+    }
+}
+
+impl Nsga2Config {
+    pub(crate) fn validate(&self) -> Result<(), String> {
+        if self.population_size < 4 {
+            return Err(format!(
+                "population_size is {}, must be at least 4",
+                self.population_size
+            ));
+        }
+        if !(0.0..=1.0).contains(&self.crossover_probability) {
+            return Err("crossover_probability must be in [0, 1]".into());
+        }
+        if !(self.crossover_eta.is_finite() && self.crossover_eta >= 0.0) {
+            return Err("crossover_eta must be finite and >= 0".into());
+        }
+        if !(self.mutation_eta.is_finite() && self.mutation_eta >= 0.0) {
+            return Err("mutation_eta must be finite and >= 0".into());
+        }
+        if let Some(p) = self.mutation_probability {
+            if !(0.0..=1.0).contains(&p) {
+                return Err("mutation_probability must be in [0, 1]".into());
+            }
+        }
+        Ok(())
+    }
+}
+
+/// Simulated binary crossover of one pair, bounded form as in Deb's reference NSGA-II code:
+/// each variable is recombined with probability 0.5.
+fn sbx(
+    p1: &[f64],
+    p2: &[f64],
+    vars: &[Variable],
+    eta: f64,
+    rng: &mut ChaCha8Rng,
+) -> (Vec<f64>, Vec<f64>) {
+    let mut c1 = p1.to_vec();
+    let mut c2 = p2.to_vec();
+    for (i, v) in vars.iter().enumerate() {
+        // The draws happen whatever the branch, so that their count is fixed per variable.
+        let r_var: f64 = rng.random();
+        let u: f64 = rng.random();
+        let r_swap: f64 = rng.random();
+        if r_var > 0.5 || (p1[i] - p2[i]).abs() <= 1e-14 || v.upper <= v.lower {
+            continue;
+        }
+        let (yl, yu) = (v.lower, v.upper);
+        let y1 = p1[i].min(p2[i]);
+        let y2 = p1[i].max(p2[i]);
+        let e1 = eta + 1.0;
+        let betaq = |beta: f64| {
+            let alpha = 2.0 - beta.powf(-e1);
+            if u <= 1.0 / alpha {
+                (u * alpha).powf(1.0 / e1)
+            } else {
+                (1.0 / (2.0 - u * alpha)).powf(1.0 / e1)
+            }
+        };
+        let b1 = betaq(1.0 + 2.0 * (y1 - yl) / (y2 - y1));
+        let a = (0.5 * ((y1 + y2) - b1 * (y2 - y1))).clamp(yl, yu);
+        let b2 = betaq(1.0 + 2.0 * (yu - y2) / (y2 - y1));
+        let b = (0.5 * ((y1 + y2) + b2 * (y2 - y1))).clamp(yl, yu);
+        if r_swap <= 0.5 {
+            c1[i] = b;
+            c2[i] = a;
+        } else {
+            c1[i] = a;
+            c2[i] = b;
+        }
+    }
+    (c1, c2)
+}
+
+/// Polynomial mutation (Deb and Goyal 1996; the bounded form of Deb's reference code).
+fn polynomial_mutation(x: &mut [f64], vars: &[Variable], eta: f64, pm: f64, rng: &mut ChaCha8Rng) {
+    for (i, v) in vars.iter().enumerate() {
+        let r_mut: f64 = rng.random();
+        let u: f64 = rng.random();
+        if r_mut >= pm || v.upper <= v.lower {
+            continue;
+        }
+        let (yl, yu) = (v.lower, v.upper);
+        let y = x[i];
+        let d1 = (y - yl) / (yu - yl);
+        let d2 = (yu - y) / (yu - yl);
+        let p = 1.0 / (eta + 1.0);
+        let dq = if u <= 0.5 {
+            let val = 2.0 * u + (1.0 - 2.0 * u) * (1.0 - d1).powf(eta + 1.0);
+            val.powf(p) - 1.0
+        } else {
+            let val = 2.0 * (1.0 - u) + 2.0 * (u - 0.5) * (1.0 - d2).powf(eta + 1.0);
+            1.0 - val.powf(p)
+        };
+        x[i] = (y + dq * (yu - yl)).clamp(yl, yu);
+    }
+}
+
+fn key(x: &[f64]) -> Vec<u64> {
+    x.iter().map(|v| v.to_bits()).collect()
+}
+
+/// The initial population: `count` points of the configured design.
+pub(crate) fn initial(
+    cfg: &Nsga2Config,
+    vars: &[Variable],
+    rng: &mut ChaCha8Rng,
+    count: usize,
+) -> Vec<Vec<f64>> {
+    doe::design(cfg.initial, vars, count, rng)
+}
+
+/// `count` offspring of `pop` by crowded binary tournament, SBX and polynomial mutation; an
+/// offspring identical to a member of `pop` or to an earlier offspring is discarded and
+/// replaced (up to a bounded number of tries).
+pub(crate) fn offspring(
+    cfg: &Nsga2Config,
+    vars: &[Variable],
+    rng: &mut ChaCha8Rng,
+    pop: &[Evaluated],
+    count: usize,
+) -> Vec<Vec<f64>> {
+    let (rank, crowd) = rank_and_crowding(pop);
+    let n = pop.len();
+    let pm = cfg
+        .mutation_probability
+        .unwrap_or(1.0 / vars.len().max(1) as f64);
+    let mut seen: HashSet<Vec<u64>> = pop.iter().map(|e| key(&e.x)).collect();
+    let mut out: Vec<Vec<f64>> = Vec::with_capacity(count);
+    let mut tries = 0usize;
+    let max_tries = 20 * count + 100;
+    let tournament = |rng: &mut ChaCha8Rng| {
+        let a = rng.random_range(0..n);
+        let b = rng.random_range(0..n);
+        let coin: bool = rng.random();
+        match crowded_compare(&rank, &crowd, a, b) {
+            std::cmp::Ordering::Less => a,
+            std::cmp::Ordering::Greater => b,
+            std::cmp::Ordering::Equal => {
+                if coin {
+                    a
+                } else {
+                    b
+                }
+            }
+        }
+    };
+    while out.len() < count {
+        let i = tournament(rng);
+        let j = tournament(rng);
+        let r_cross: f64 = rng.random();
+        let (mut c1, mut c2) = if r_cross < cfg.crossover_probability {
+            sbx(&pop[i].x, &pop[j].x, vars, cfg.crossover_eta, rng)
+        } else {
+            (pop[i].x.clone(), pop[j].x.clone())
+        };
+        polynomial_mutation(&mut c1, vars, cfg.mutation_eta, pm, rng);
+        polynomial_mutation(&mut c2, vars, cfg.mutation_eta, pm, rng);
+        for c in [c1, c2] {
+            if out.len() >= count {
+                break;
+            }
+            tries += 1;
+            let k = key(&c);
+            if seen.contains(&k) && tries <= max_tries {
+                continue;
+            }
+            seen.insert(k);
+            out.push(c);
+        }
+    }
+    out
+}
+
+/// Elitist survival: the best `n` of `merged` by constrained non-dominated rank, the last
+/// front cut by crowding distance (ties kept in index order, so the result is deterministic).
+pub(crate) fn survive(merged: Vec<Evaluated>, n: usize) -> Vec<Evaluated> {
+    if merged.len() <= n {
+        return merged;
+    }
+    let (fronts, _) = non_dominated_sort(&merged);
+    let mut chosen: Vec<usize> = Vec::with_capacity(n);
+    for front in fronts {
+        if chosen.len() + front.len() <= n {
+            chosen.extend_from_slice(&front);
+        } else {
+            let d = crowding_distance(&merged, &front);
+            let mut order: Vec<usize> = (0..front.len()).collect();
+            order.sort_by(|&a, &b| d[b].total_cmp(&d[a]).then(a.cmp(&b)));
+            let need = n - chosen.len();
+            chosen.extend(order.into_iter().take(need).map(|k| front[k]));
+        }
+        if chosen.len() >= n {
+            break;
+        }
+    }
+    let mut slots: Vec<Option<Evaluated>> = merged.into_iter().map(Some).collect();
+    chosen
+        .into_iter()
+        .map(|i| slots[i].take().expect("each chosen once"))
+        .collect()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use rand::SeedableRng;
+
+    fn vars(n: usize) -> Vec<Variable> {
+        (0..n)
+            .map(|i| Variable::new(format!("x{i}"), 0.0, 1.0))
+            .collect()
+    }
+
+    #[test]
+    fn sbx_and_mutation_stay_in_bounds() {
+        let v = vars(5);
+        let mut rng = ChaCha8Rng::seed_from_u64(3);
+        for _ in 0..2000 {
+            let p1: Vec<f64> = (0..5).map(|_| rng.random()).collect();
+            let p2: Vec<f64> = (0..5).map(|_| rng.random()).collect();
+            let (mut a, b) = sbx(&p1, &p2, &v, 20.0, &mut rng);
+            polynomial_mutation(&mut a, &v, 20.0, 1.0, &mut rng);
+            assert!(a.iter().chain(&b).all(|x| (0.0..=1.0).contains(x)));
+        }
+    }
+
+    #[test]
+    fn sbx_preserves_the_mean_of_the_parents() {
+        // Property of SBX (Deb and Agrawal 1995): children are symmetric about the parents'
+        // mean when no bound is hit.
+        let v = vec![Variable::new("x", -1e6, 1e6)];
+        let mut rng = ChaCha8Rng::seed_from_u64(5);
+        for _ in 0..500 {
+            let (a, b) = sbx(&[0.3], &[0.7], &v, 20.0, &mut rng);
+            assert!((a[0] + b[0] - 1.0).abs() < 1e-9);
+        }
+    }
+}

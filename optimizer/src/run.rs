@@ -1,0 +1,498 @@
+//! A run: configuration, serialisable state, one step at a time, termination.
+
+use crate::archive::Archive;
+use crate::doe::{self, InitialDesign};
+use crate::indicators::hypervolume;
+use crate::nsga2::{self, Nsga2Config};
+use crate::problem::{evaluate_batch, Evaluated, Problem, Variable};
+use crate::scalarised::{self, ScalarisedConfig, ScalarisedState};
+use crate::screening::{self, ScreeningConfig, ScreeningState};
+use rand::{Rng, SeedableRng};
+use rand_chacha::ChaCha8Rng;
+use serde::{Deserialize, Serialize};
+use std::sync::atomic::{AtomicBool, Ordering};
+use std::time::Instant;
+
+/// Version of the serialised [`Run`] state; bumped whenever its layout changes.
+pub const STATE_VERSION: u32 = 1;
+
+/// Which algorithm a run uses.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Algorithm {
+    /// NSGA-II, one generation a step.
+    Nsga2(Nsga2Config),
+    /// A series of single-objective sub-problems (weighted sum, Chebyshev or epsilon
+    /// constraint) solved through argmin, one sub-problem a step.
+    Scalarised(ScalarisedConfig),
+    /// A design of experiments evaluated in batches, one batch a step.
+    Screening(ScreeningConfig),
+}
+
+impl Algorithm {
+    /// Short name: `nsga2`, `scalarised` or `screening`.
+    pub fn name(&self) -> &'static str {
+        match self {
+            Algorithm::Nsga2(_) => "nsga2",
+            Algorithm::Scalarised(_) => "scalarised",
+            Algorithm::Screening(_) => "screening",
+        }
+    }
+}
+
+/// Everything that fixes a run (with the problem).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct RunConfig {
+    /// The algorithm and its settings.
+    pub algorithm: Algorithm,
+    /// Seed of the run's random number generator; the only source of randomness.
+    pub seed: u64,
+    /// Evaluation budget (at least 1); a step never goes past it.
+    pub max_evaluations: u64,
+    /// Epsilon grid of the archive (one positive value per objective), bounding its size.
+    pub archive_epsilon: Option<Vec<f64>>,
+    /// Hypervolume reference point; `None` fixes one from the first feasible designs found
+    /// (their worst value plus 10 % of their range in each objective) and keeps it.
+    pub hv_reference: Option<Vec<f64>>,
+    /// Stop when the archive hypervolume has not grown by more than `stall_tolerance`
+    /// (relative) over this many steps.
+    pub stall_generations: Option<u64>,
+    /// Relative hypervolume growth below which a step counts as stalled.
+    pub stall_tolerance: f64,
+}
+
+impl RunConfig {
+    /// A configuration with no archive grid, an automatic hypervolume reference and no stall
+    /// test.
+    pub fn new(algorithm: Algorithm, seed: u64, max_evaluations: u64) -> RunConfig {
+        RunConfig {
+            algorithm,
+            seed,
+            max_evaluations,
+            archive_epsilon: None,
+            hv_reference: None,
+            stall_generations: None,
+            stall_tolerance: 1e-6,
+        }
+    }
+}
+
+/// Why a run stopped.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum StopReason {
+    /// The evaluation budget is used up.
+    EvaluationBudget,
+    /// The algorithm has nothing left to do (every design or sub-problem done).
+    Completed,
+    /// The hypervolume stalled for the configured number of steps.
+    Stalled,
+    /// The wall-clock deadline passed.
+    Deadline,
+    /// The caller raised the stop flag.
+    StopRequested,
+}
+
+impl std::fmt::Display for StopReason {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        let s = match self {
+            StopReason::EvaluationBudget => "evaluation budget reached",
+            StopReason::Completed => "completed",
+            StopReason::Stalled => "hypervolume stalled",
+            StopReason::Deadline => "wall-clock budget reached",
+            StopReason::StopRequested => "stopped on request",
+        };
+        f.write_str(s)
+    }
+}
+
+/// A configuration that cannot be run on this problem.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+pub enum ConfigError {
+    /// A variable's bounds are not finite or are reversed.
+    #[error("variable `{name}`: {message}")]
+    Variable {
+        /// The variable's name.
+        name: String,
+        /// What is wrong.
+        message: String,
+    },
+    /// The problem's shape is unusable (no variables, no objectives).
+    #[error("problem: {0}")]
+    Problem(String),
+    /// A setting of the run is out of range.
+    #[error("setting `{field}`: {message}")]
+    Setting {
+        /// The setting.
+        field: String,
+        /// What is wrong and what is allowed.
+        message: String,
+    },
+    /// A serialised state could not be read or is of another version.
+    #[error("run state: {0}")]
+    State(String),
+}
+
+fn setting(field: &str, message: impl Into<String>) -> ConfigError {
+    ConfigError::Setting {
+        field: field.to_string(),
+        message: message.into(),
+    }
+}
+
+/// What one step did.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct StepReport {
+    /// The step's generation number (0 for the first step).
+    pub generation: u64,
+    /// Evaluations done by the run so far, this step included.
+    pub evaluations: u64,
+    /// The designs evaluated in this step, in id order.
+    pub new: Vec<Evaluated>,
+    /// Share of this step's designs that are feasible (0 when none were evaluated).
+    pub feasible_share: f64,
+    /// Hypervolume of the archive after this step (0 before a reference point exists).
+    pub hypervolume: f64,
+}
+
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+enum AlgoState {
+    Nsga2,
+    Scalarised(ScalarisedState),
+    Screening(ScreeningState),
+}
+
+/// A run: the whole state of an optimisation (configuration, population, archive, random
+/// number generator, counters). It serialises with serde; a run taken through JSON between two
+/// steps continues exactly as one that was not (serde_json's `float_roundtrip` is enabled).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Run {
+    version: u32,
+    config: RunConfig,
+    variables: Vec<Variable>,
+    num_objectives: usize,
+    num_constraints: usize,
+    rng: ChaCha8Rng,
+    generation: u64,
+    evaluations: u64,
+    population: Vec<Evaluated>,
+    archive: Archive,
+    hv_reference: Option<Vec<f64>>,
+    hv_history: Vec<f64>,
+    state: AlgoState,
+}
+
+impl Run {
+    /// Check `config` against `problem` and set up a run (no evaluation yet).
+    pub fn new(config: RunConfig, problem: &(impl Problem + ?Sized)) -> Result<Run, ConfigError> {
+        let variables = problem.variables();
+        let m = problem.num_objectives();
+        if variables.is_empty() {
+            return Err(ConfigError::Problem("no variables".into()));
+        }
+        if m == 0 {
+            return Err(ConfigError::Problem("no objectives".into()));
+        }
+        for v in &variables {
+            if !(v.lower.is_finite() && v.upper.is_finite()) {
+                return Err(ConfigError::Variable {
+                    name: v.name.clone(),
+                    message: format!("bounds must be finite, got [{}, {}]", v.lower, v.upper),
+                });
+            }
+            if v.lower > v.upper {
+                return Err(ConfigError::Variable {
+                    name: v.name.clone(),
+                    message: format!("lower bound {} is above upper bound {}", v.lower, v.upper),
+                });
+            }
+        }
+        if config.max_evaluations == 0 {
+            return Err(setting("max_evaluations", "must be at least 1"));
+        }
+        if let Some(eps) = &config.archive_epsilon {
+            if eps.len() != m || eps.iter().any(|e| !(e.is_finite() && *e > 0.0)) {
+                return Err(setting(
+                    "archive_epsilon",
+                    format!("needs {m} positive finite values, one per objective"),
+                ));
+            }
+        }
+        if let Some(r) = &config.hv_reference {
+            if r.len() != m || r.iter().any(|e| !e.is_finite()) {
+                return Err(setting(
+                    "hv_reference",
+                    format!("needs {m} finite values, one per objective"),
+                ));
+            }
+        }
+        if config.stall_generations == Some(0) {
+            return Err(setting("stall_generations", "must be at least 1"));
+        }
+        if !(config.stall_tolerance.is_finite() && config.stall_tolerance >= 0.0) {
+            return Err(setting("stall_tolerance", "must be finite and >= 0"));
+        }
+        let mut rng = ChaCha8Rng::seed_from_u64(config.seed);
+        let state = match &config.algorithm {
+            Algorithm::Nsga2(c) => {
+                c.validate().map_err(|e| setting("nsga2", e))?;
+                if c.initial == InitialDesign::Sobol {
+                    check_sobol(c.population_size, variables.len())?;
+                }
+                AlgoState::Nsga2
+            }
+            Algorithm::Scalarised(c) => {
+                c.validate(m).map_err(|e| setting("scalarised", e))?;
+                AlgoState::Scalarised(ScalarisedState::new(c, m))
+            }
+            Algorithm::Screening(c) => {
+                c.validate().map_err(|e| setting("screening", e))?;
+                if c.design == InitialDesign::Sobol {
+                    check_sobol(c.points, variables.len())?;
+                }
+                AlgoState::Screening(ScreeningState::new(rng.random()))
+            }
+        };
+        Ok(Run {
+            version: STATE_VERSION,
+            archive: Archive::new(config.archive_epsilon.clone()),
+            hv_reference: config.hv_reference.clone(),
+            config,
+            variables,
+            num_objectives: m,
+            num_constraints: problem.num_constraints(),
+            rng,
+            generation: 0,
+            evaluations: 0,
+            population: Vec::new(),
+            hv_history: Vec::new(),
+            state,
+        })
+    }
+
+    /// Read a state written with `serde_json`, checking its version.
+    pub fn from_json(text: &str) -> Result<Run, ConfigError> {
+        let run: Run = serde_json::from_str(text).map_err(|e| ConfigError::State(e.to_string()))?;
+        if run.version != STATE_VERSION {
+            return Err(ConfigError::State(format!(
+                "state version {} cannot be read by this version (reads {STATE_VERSION})",
+                run.version
+            )));
+        }
+        Ok(run)
+    }
+
+    /// The state as JSON (bit-exact round trip through [`Run::from_json`]).
+    pub fn to_json(&self) -> String {
+        serde_json::to_string(self).expect("a run state always serialises")
+    }
+
+    /// One generation (NSGA-II), one sub-problem (scalarised) or one batch (screening);
+    /// evaluations in parallel where the algorithm allows it. Does nothing once
+    /// [`Run::finished`] says so.
+    pub fn step(&mut self, problem: &(impl Problem + ?Sized)) -> StepReport {
+        let generation = self.generation;
+        if self.finished().is_some() {
+            return StepReport {
+                generation,
+                evaluations: self.evaluations,
+                new: Vec::new(),
+                feasible_share: 0.0,
+                hypervolume: self.hv_history.last().copied().unwrap_or(0.0),
+            };
+        }
+        let remaining = (self.config.max_evaluations - self.evaluations) as usize;
+        let new = match (&self.config.algorithm, &mut self.state) {
+            (Algorithm::Nsga2(c), AlgoState::Nsga2) => {
+                let n = c.population_size.min(remaining);
+                let xs = if self.population.is_empty() {
+                    nsga2::initial(c, &self.variables, &mut self.rng, n)
+                } else {
+                    nsga2::offspring(c, &self.variables, &mut self.rng, &self.population, n)
+                };
+                let new = evaluate_batch(problem, xs, self.evaluations, generation);
+                let mut merged = std::mem::take(&mut self.population);
+                merged.extend(new.iter().cloned());
+                self.population = nsga2::survive(merged, c.population_size);
+                new
+            }
+            (Algorithm::Scalarised(c), AlgoState::Scalarised(s)) => {
+                let new = scalarised::step(
+                    c,
+                    s,
+                    problem,
+                    &self.variables,
+                    &mut self.rng,
+                    &self.archive,
+                    &self.population,
+                    self.evaluations,
+                    generation,
+                    remaining as u64,
+                );
+                self.population = new.clone();
+                new
+            }
+            (Algorithm::Screening(c), AlgoState::Screening(s)) => {
+                let xs = screening::next_batch(c, s, &self.variables, remaining);
+                let new = evaluate_batch(problem, xs, self.evaluations, generation);
+                self.population = new.clone();
+                new
+            }
+            _ => unreachable!("the state always matches the configured algorithm"),
+        };
+        self.evaluations += new.len() as u64;
+        for e in &new {
+            self.archive.insert(e);
+        }
+        let hv = self.update_hypervolume();
+        self.generation += 1;
+        let feasible = new.iter().filter(|e| e.is_feasible()).count();
+        StepReport {
+            generation,
+            evaluations: self.evaluations,
+            feasible_share: if new.is_empty() {
+                0.0
+            } else {
+                feasible as f64 / new.len() as f64
+            },
+            new,
+            hypervolume: hv,
+        }
+    }
+
+    fn update_hypervolume(&mut self) -> f64 {
+        if self.hv_reference.is_none() && !self.archive.is_empty() {
+            let pts = self.archive.objectives();
+            let r = (0..self.num_objectives)
+                .map(|i| {
+                    let hi = pts.iter().map(|p| p[i]).fold(f64::NEG_INFINITY, f64::max);
+                    let lo = pts.iter().map(|p| p[i]).fold(f64::INFINITY, f64::min);
+                    let span = (hi - lo).max(1e-9 * hi.abs().max(1.0));
+                    hi + 0.1 * span
+                })
+                .collect();
+            self.hv_reference = Some(r);
+        }
+        let hv = match &self.hv_reference {
+            Some(r) => hypervolume(&self.archive.objectives(), r),
+            None => 0.0,
+        };
+        self.hv_history.push(hv);
+        hv
+    }
+
+    /// Why the run is over, if it is (budget, algorithm complete, stalled hypervolume).
+    /// A deadline or a stop request is reported by [`Run::run`] instead.
+    pub fn finished(&self) -> Option<StopReason> {
+        if self.evaluations >= self.config.max_evaluations {
+            return Some(StopReason::EvaluationBudget);
+        }
+        let done = match (&self.config.algorithm, &self.state) {
+            (Algorithm::Scalarised(c), AlgoState::Scalarised(s)) => s.complete(c),
+            (Algorithm::Screening(c), AlgoState::Screening(s)) => s.complete(c),
+            _ => false,
+        };
+        if done {
+            return Some(StopReason::Completed);
+        }
+        if let Some(k) = self.config.stall_generations {
+            let h = &self.hv_history;
+            let k = k as usize;
+            if h.len() > k {
+                let old = h[h.len() - 1 - k];
+                let now = h[h.len() - 1];
+                if old > 0.0 && now <= old * (1.0 + self.config.stall_tolerance) {
+                    return Some(StopReason::Stalled);
+                }
+            }
+        }
+        None
+    }
+
+    /// Step until finished, the stop flag is raised or the deadline passes (both checked
+    /// between steps), calling `on_step` after every step.
+    pub fn run(
+        &mut self,
+        problem: &(impl Problem + ?Sized),
+        mut on_step: impl FnMut(&StepReport, &Run),
+        stop: &AtomicBool,
+        deadline: Option<Instant>,
+    ) -> StopReason {
+        loop {
+            if let Some(r) = self.finished() {
+                return r;
+            }
+            if stop.load(Ordering::SeqCst) {
+                return StopReason::StopRequested;
+            }
+            if deadline.is_some_and(|d| Instant::now() >= d) {
+                return StopReason::Deadline;
+            }
+            let report = self.step(problem);
+            on_step(&report, self);
+        }
+    }
+
+    /// The non-dominated feasible designs found so far.
+    pub fn archive(&self) -> &Archive {
+        &self.archive
+    }
+
+    /// The current population (NSGA-II) or the designs of the last step (other algorithms).
+    pub fn population(&self) -> &[Evaluated] {
+        &self.population
+    }
+
+    /// The configuration.
+    pub fn config(&self) -> &RunConfig {
+        &self.config
+    }
+
+    /// The variables, as the problem gave them when the run was set up.
+    pub fn variables(&self) -> &[Variable] {
+        &self.variables
+    }
+
+    /// Steps done so far.
+    pub fn generation(&self) -> u64 {
+        self.generation
+    }
+
+    /// Evaluations done so far.
+    pub fn evaluations(&self) -> u64 {
+        self.evaluations
+    }
+
+    /// The hypervolume reference point in use (configured or fixed from the first front).
+    pub fn hv_reference(&self) -> Option<&[f64]> {
+        self.hv_reference.as_deref()
+    }
+
+    /// Archive hypervolume after each step so far.
+    pub fn hv_history(&self) -> &[f64] {
+        &self.hv_history
+    }
+}
+
+fn check_sobol(points: usize, dims: usize) -> Result<(), ConfigError> {
+    if points > doe::SOBOL_MAX_POINTS {
+        return Err(setting(
+            "design",
+            format!(
+                "a Sobol design holds at most {} points, {points} asked; use a Latin hypercube",
+                doe::SOBOL_MAX_POINTS
+            ),
+        ));
+    }
+    if dims > doe::SOBOL_MAX_DIMENSIONS {
+        return Err(setting(
+            "design",
+            format!(
+                "a Sobol design holds at most {} variables, the problem has {dims}",
+                doe::SOBOL_MAX_DIMENSIONS
+            ),
+        ));
+    }
+    Ok(())
+}

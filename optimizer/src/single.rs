@@ -1,0 +1,336 @@
+//! Single-objective, gradient-free minimisation through argmin 0.11 behind one small
+//! interface, [`minimize`]: Nelder-Mead (Nelder and Mead, Comput. J. 7 (1965) 308), particle
+//! swarm (Kennedy and Eberhart 1995, with the constriction settings of argmin) and simulated
+//! annealing (Kirkpatrick, Gelatt and Vecchi, Science 220 (1983) 671).
+//!
+//! argmin's types stay inside this module. The adapter
+//! - clamps every trial point into the bounds and adds a penalty growing with the distance
+//!   outside them (Nelder-Mead and annealing moves are unbounded);
+//! - turns a NaN or infinite cost into a large finite penalty, because argmin's Nelder-Mead
+//!   has no guard against NaN;
+//! - counts evaluations and stops the solver when the budget is used up;
+//! - keeps the best point itself, so the answer is the best design actually evaluated.
+
+use argmin::core::{CostFunction, Error as ArgminError, Executor};
+use argmin::solver::neldermead::NelderMead;
+use argmin::solver::particleswarm::ParticleSwarm;
+use argmin::solver::simulatedannealing::{Anneal, SimulatedAnnealing};
+use rand::{Rng, SeedableRng};
+use rand_chacha::ChaCha8Rng;
+use serde::{Deserialize, Serialize};
+use std::sync::Mutex;
+
+/// Cost given to the solver for a failed (non-finite) evaluation.
+pub const FAILURE_COST: f64 = 1e100;
+
+/// Which argmin solver [`minimize`] uses.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Solver {
+    /// Nelder-Mead simplex, restarted from the best point while budget remains.
+    NelderMead,
+    /// Particle swarm over the bounds (the only one that does not need a start point).
+    ParticleSwarm,
+    /// Simulated annealing with moves shrinking with the temperature.
+    SimulatedAnnealing,
+}
+
+/// The best point found by [`minimize`].
+#[derive(Debug, Clone, PartialEq)]
+pub struct Minimum {
+    /// Best point (within the bounds).
+    pub x: Vec<f64>,
+    /// Its cost, as the cost function returned it (finite unless every evaluation failed).
+    pub f: f64,
+    /// Evaluations used.
+    pub evaluations: u64,
+}
+
+/// Input that [`minimize`] cannot work with.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+pub enum MinimizeError {
+    /// Bounds empty, reversed or not finite.
+    #[error("bounds: {0}")]
+    Bounds(String),
+    /// A start point of the wrong length or outside the bounds.
+    #[error("start point: {0}")]
+    Start(String),
+    /// A zero evaluation budget.
+    #[error("the evaluation budget must be at least 1")]
+    Budget,
+}
+
+struct Tracker {
+    evaluations: u64,
+    best: Option<(Vec<f64>, f64)>,
+    rng: ChaCha8Rng,
+}
+
+/// The argmin problem: borrows the cost function and the shared tracker, so a solver that
+/// stops with an error (the budget stop) loses nothing.
+struct Adapter<'a, F> {
+    f: &'a F,
+    lower: &'a [f64],
+    upper: &'a [f64],
+    budget: u64,
+    init_temp: f64,
+    tracker: &'a Mutex<Tracker>,
+}
+
+impl<F: Fn(&[f64]) -> f64> Adapter<'_, F> {
+    fn clamp(&self, p: &[f64]) -> (Vec<f64>, f64) {
+        let mut outside = 0.0;
+        let x = p
+            .iter()
+            .zip(self.lower.iter().zip(self.upper))
+            .map(|(v, (lo, hi))| {
+                let v = if v.is_nan() { 0.5 * (lo + hi) } else { *v };
+                let range = (hi - lo).max(f64::MIN_POSITIVE);
+                if v < *lo {
+                    outside += (lo - v) / range;
+                } else if v > *hi {
+                    outside += (v - hi) / range;
+                }
+                v.clamp(*lo, *hi)
+            })
+            .collect();
+        (x, outside.min(1e6))
+    }
+
+    fn lock(&self) -> std::sync::MutexGuard<'_, Tracker> {
+        self.tracker.lock().unwrap_or_else(|e| e.into_inner())
+    }
+
+    fn used(&self) -> u64 {
+        self.lock().evaluations
+    }
+
+    fn best(&self) -> Option<(Vec<f64>, f64)> {
+        self.lock().best.clone()
+    }
+
+    fn again(&self) -> Self {
+        Adapter { ..*self }
+    }
+}
+
+impl<F: Fn(&[f64]) -> f64> CostFunction for Adapter<'_, F> {
+    type Param = Vec<f64>;
+    type Output = f64;
+
+    fn cost(&self, p: &Vec<f64>) -> Result<f64, ArgminError> {
+        if self.used() >= self.budget {
+            return Err(ArgminError::msg("evaluation budget used up"));
+        }
+        let (x, outside) = self.clamp(p);
+        let raw = (self.f)(&x);
+        let value = if raw.is_finite() { raw } else { FAILURE_COST };
+        let mut t = self.lock();
+        t.evaluations += 1;
+        if raw.is_finite() && t.best.as_ref().is_none_or(|(_, b)| raw < *b) {
+            t.best = Some((x, raw));
+        }
+        Ok(value + outside * (1.0 + value.abs()))
+    }
+}
+
+impl<F: Fn(&[f64]) -> f64> Anneal for Adapter<'_, F> {
+    type Param = Vec<f64>;
+    type Output = Vec<f64>;
+    type Float = f64;
+
+    fn anneal(&self, p: &Vec<f64>, temp: f64) -> Result<Vec<f64>, ArgminError> {
+        // Step size: a quarter of the range at the initial temperature, shrinking with it.
+        let scale = 0.25 * (temp / self.init_temp).clamp(1e-6, 1.0);
+        let mut t = self.lock();
+        Ok(p.iter()
+            .zip(self.lower.iter().zip(self.upper))
+            .map(|(v, (lo, hi))| {
+                let u: f64 = t.rng.random();
+                (v + (2.0 * u - 1.0) * scale * (hi - lo)).clamp(*lo, *hi)
+            })
+            .collect())
+    }
+}
+
+/// Minimise `f` over the box `bounds` with at most `budget` evaluations, starting (Nelder-Mead,
+/// annealing) from the centre of the box. Every random number comes from `seed`.
+pub fn minimize<F: Fn(&[f64]) -> f64>(
+    f: F,
+    bounds: &[(f64, f64)],
+    solver: Solver,
+    budget: u64,
+    seed: u64,
+) -> Result<Minimum, MinimizeError> {
+    let x0: Vec<f64> = bounds.iter().map(|(lo, hi)| 0.5 * (lo + hi)).collect();
+    minimize_from(f, bounds, &x0, solver, budget, seed)
+}
+
+/// As [`minimize`], from the start point `x0` (particle swarm ignores it: its swarm is drawn
+/// at random over the bounds).
+pub fn minimize_from<F: Fn(&[f64]) -> f64>(
+    f: F,
+    bounds: &[(f64, f64)],
+    x0: &[f64],
+    solver: Solver,
+    budget: u64,
+    seed: u64,
+) -> Result<Minimum, MinimizeError> {
+    if bounds.is_empty() {
+        return Err(MinimizeError::Bounds("no variables".into()));
+    }
+    for (i, (lo, hi)) in bounds.iter().enumerate() {
+        if !(lo.is_finite() && hi.is_finite() && lo <= hi) {
+            return Err(MinimizeError::Bounds(format!(
+                "variable {}: [{lo}, {hi}] is not a finite interval",
+                i + 1
+            )));
+        }
+    }
+    if x0.len() != bounds.len() {
+        return Err(MinimizeError::Start(format!(
+            "{} values for {} variables",
+            x0.len(),
+            bounds.len()
+        )));
+    }
+    if x0
+        .iter()
+        .zip(bounds)
+        .any(|(v, (lo, hi))| !(v >= lo && v <= hi))
+    {
+        return Err(MinimizeError::Start("outside the bounds".into()));
+    }
+    if budget == 0 {
+        return Err(MinimizeError::Budget);
+    }
+    let mut rng = ChaCha8Rng::seed_from_u64(seed);
+    let tracker = Mutex::new(Tracker {
+        evaluations: 0,
+        best: None,
+        rng: ChaCha8Rng::seed_from_u64(rng.random()),
+    });
+    let lower: Vec<f64> = bounds.iter().map(|b| b.0).collect();
+    let upper: Vec<f64> = bounds.iter().map(|b| b.1).collect();
+    let adapter = Adapter {
+        f: &f,
+        lower: &lower,
+        upper: &upper,
+        budget,
+        init_temp: 1.0,
+        tracker: &tracker,
+    };
+    match solver {
+        Solver::NelderMead => nelder_mead(&adapter, x0),
+        Solver::ParticleSwarm => particle_swarm(&adapter, &mut rng),
+        Solver::SimulatedAnnealing => annealing(&adapter, x0, &mut rng),
+    }
+    let t = tracker.into_inner().unwrap_or_else(|e| e.into_inner());
+    Ok(match t.best {
+        Some((x, f)) => Minimum {
+            x,
+            f,
+            evaluations: t.evaluations,
+        },
+        None => Minimum {
+            x: x0.to_vec(),
+            f: f64::INFINITY,
+            evaluations: t.evaluations,
+        },
+    })
+}
+
+fn nelder_mead<F: Fn(&[f64]) -> f64>(a: &Adapter<'_, F>, x0: &[f64]) {
+    let mut start = x0.to_vec();
+    let mut size = 0.1;
+    let mut last_best = f64::INFINITY;
+    // Restart from the best point with a smaller simplex while budget remains: a collapsed
+    // simplex is a known failure mode of Nelder-Mead (McKinnon, SIAM J. Optim. 9 (1998) 148).
+    for _ in 0..12 {
+        let left = a.budget.saturating_sub(a.used());
+        if left == 0 {
+            break;
+        }
+        let simplex = initial_simplex(&start, a.lower, a.upper, size);
+        let solver = NelderMead::new(simplex)
+            .with_sd_tolerance(1e-15)
+            .expect("a positive tolerance is accepted");
+        // An error here is the adapter's budget stop; the tracker keeps the best point.
+        let _ = Executor::new(a.again(), solver)
+            .configure(|s| s.max_iters(left))
+            .timer(false)
+            .run();
+        match a.best() {
+            Some((x, f)) if f < last_best => {
+                last_best = f;
+                start = x;
+                size *= 0.5;
+            }
+            _ => break,
+        }
+    }
+}
+
+fn initial_simplex(x0: &[f64], lo: &[f64], hi: &[f64], size: f64) -> Vec<Vec<f64>> {
+    let mut s = vec![x0.to_vec()];
+    for i in 0..x0.len() {
+        let mut v = x0.to_vec();
+        let step = size * (hi[i] - lo[i]).max(1e-12);
+        v[i] = if v[i] + step <= hi[i] {
+            v[i] + step
+        } else {
+            v[i] - step
+        };
+        s.push(v);
+    }
+    s
+}
+
+fn particle_swarm<F: Fn(&[f64]) -> f64>(a: &Adapter<'_, F>, rng: &mut ChaCha8Rng) {
+    let n = a.lower.len();
+    let particles = (10 + 2 * n).clamp(10, 40).min(a.budget.max(1) as usize);
+    let swarm = ParticleSwarm::new((a.lower.to_vec(), a.upper.to_vec()), particles)
+        .with_rng_generator(ChaCha8Rng::seed_from_u64(rng.random()));
+    let _ = Executor::new(a.again(), swarm)
+        .configure(|s| s.max_iters(a.budget))
+        .timer(false)
+        .run();
+}
+
+fn annealing<F: Fn(&[f64]) -> f64>(a: &Adapter<'_, F>, x0: &[f64], rng: &mut ChaCha8Rng) {
+    // The temperature is in cost units: start at the spread of a few random costs, so that
+    // worse moves are often accepted at first whatever the scale of the cost.
+    let probe: Vec<f64> = (0..5)
+        .map(|_| {
+            let x: Vec<f64> = a
+                .lower
+                .iter()
+                .zip(a.upper)
+                .map(|(lo, hi)| lo + rng.random::<f64>() * (hi - lo))
+                .collect();
+            a.cost(&x).unwrap_or(FAILURE_COST)
+        })
+        .filter(|c| *c < FAILURE_COST)
+        .collect();
+    let spread = if probe.len() >= 2 {
+        let mean = probe.iter().sum::<f64>() / probe.len() as f64;
+        (probe.iter().map(|c| (c - mean).abs()).sum::<f64>() / probe.len() as f64).max(1e-9)
+    } else {
+        1.0
+    };
+    let adapter = Adapter {
+        init_temp: spread,
+        ..a.again()
+    };
+    let left = a.budget.saturating_sub(a.used());
+    if left == 0 {
+        return;
+    }
+    let sa = SimulatedAnnealing::new_with_rng(spread, ChaCha8Rng::seed_from_u64(rng.random()))
+        .expect("a positive temperature is accepted")
+        .with_reannealing_best(left / 10 + 10);
+    let _ = Executor::new(adapter, sa)
+        .configure(|s| s.param(x0.to_vec()).max_iters(left))
+        .timer(false)
+        .run();
+}
