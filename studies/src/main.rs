@@ -1,1 +1,131 @@
-fn main() {}
+//! `stria`: the command line of stria. Parses arguments and dispatches to the library; every
+//! failure becomes one message on stderr and an exit code (0 ok, 1 runtime failure, 2 bad input).
+
+use std::path::PathBuf;
+use std::process::ExitCode;
+
+use clap::{Parser, Subcommand};
+use studies::error::CliError;
+
+/// Design patterned ion-exchange membranes for electrodialysis with a fast reduced-order model
+/// and optimisers. A screening model: results guide design and CFD; they do not certify a plant.
+#[derive(Parser, Debug)]
+#[command(name = "stria", version, about)]
+struct Cli {
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Subcommand, Debug)]
+enum Command {
+    /// Check a study file; print it with every default explicit and the model's warnings at
+    /// the variable bounds. Exit 0 valid, 2 invalid.
+    Check {
+        /// The study file (TOML).
+        study: PathBuf,
+    },
+    /// Evaluate one design: the study's baseline, changed by --set.
+    Eval {
+        /// The study file (TOML).
+        study: PathBuf,
+        /// Change one key, with the study file's key names: --set membranes.pitch_um=80
+        #[arg(long = "set", value_name = "SECTION.KEY=VALUE")]
+        sets: Vec<String>,
+        /// Print the evaluation as JSON (SI units) instead of the design sheet.
+        #[arg(long)]
+        json: bool,
+        /// Add the profiles along the channel.
+        #[arg(long)]
+        profile: bool,
+    },
+    /// Run the study's optimisation; running again on the same directory resumes.
+    Run {
+        /// The study file (TOML).
+        study: PathBuf,
+        /// Run directory (default: runs/<study file name>).
+        #[arg(long)]
+        out: Option<PathBuf>,
+        /// Worker threads (default: all cores).
+        #[arg(long)]
+        threads: Option<usize>,
+        /// Evaluation budget (overrides optimizer.max_evaluations).
+        #[arg(long = "max-evals")]
+        max_evals: Option<u64>,
+        /// Wall-clock budget of this invocation in hours (overrides optimizer.hours).
+        #[arg(long)]
+        hours: Option<f64>,
+        /// Discard an existing run in the directory and start afresh.
+        #[arg(long)]
+        fresh: bool,
+    },
+    /// Figures and a self-contained HTML page for a run directory.
+    Report {
+        /// The run directory.
+        dir: PathBuf,
+    },
+    /// CFD case cards for chosen designs of a run.
+    Handoff {
+        /// The run directory.
+        dir: PathBuf,
+        /// Design id from front.csv (repeat for several).
+        #[arg(long = "pick", required = true)]
+        picks: Vec<u64>,
+        /// Output directory (default: DIR/handoff).
+        #[arg(long)]
+        out: Option<PathBuf>,
+    },
+    /// Calibrate ROM constants to current-voltage data.
+    Fit {
+        /// The data (CSV).
+        data: PathBuf,
+        /// The study whose design and constants the data belong to.
+        #[arg(long)]
+        study: PathBuf,
+        /// A ROM constant to fit (repeat for several; default: the usual set).
+        #[arg(long = "fit", value_name = "KEY")]
+        fit: Vec<String>,
+        /// Where to write the constants file.
+        #[arg(long)]
+        out: Option<PathBuf>,
+    },
+    /// Print the reference of every study-file key (Markdown: docs/study-reference.md).
+    Keys,
+}
+
+fn dispatch(cli: Cli) -> Result<(), CliError> {
+    match cli.command {
+        Command::Check { study } => studies::check::run(&study),
+        Command::Eval {
+            study,
+            sets,
+            json,
+            profile,
+        } => studies::eval::run(&study, &sets, json, profile),
+        Command::Run { .. } => Err(CliError::Runtime("`stria run` is not yet built".into())),
+        Command::Report { .. } | Command::Handoff { .. } | Command::Fit { .. } => {
+            Err(CliError::Runtime("this command is not yet built".into()))
+        }
+        Command::Keys => {
+            print!("{}", studies::study::keys::reference_markdown());
+            Ok(())
+        }
+    }
+}
+
+fn main() -> ExitCode {
+    let cli = match Cli::try_parse() {
+        Ok(cli) => cli,
+        Err(e) => {
+            // clap: help and version exit 0, usage errors exit 2.
+            let _ = e.print();
+            return ExitCode::from(e.exit_code().clamp(0, 255) as u8);
+        }
+    };
+    match dispatch(cli) {
+        Ok(()) => ExitCode::SUCCESS,
+        Err(e) => {
+            eprintln!("{e}");
+            ExitCode::from(e.exit_code())
+        }
+    }
+}

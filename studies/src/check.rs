@@ -1,0 +1,79 @@
+//! `stria check`: validate a study, print it resolved, and the model's warnings at the bounds.
+
+use std::path::Path;
+
+use model::Options;
+
+use crate::error::CliError;
+use crate::study::Study;
+
+/// The model's validity warnings (and failures) at the baseline and at each variable's lower
+/// and upper bound (the other variables at their baseline), one line each, deduplicated.
+pub fn bound_warnings(study: &Study) -> Vec<String> {
+    let base = study.baseline_x();
+    let mut points: Vec<(String, Vec<f64>)> = vec![("baseline".to_string(), base.clone())];
+    for (i, v) in study.variables.iter().enumerate() {
+        for (label, value) in [("lower", v.lower), ("upper", v.upper)] {
+            let mut x = base.clone();
+            x[i] = value;
+            let (suffix, to_si) = v.kind.bound_unit();
+            let unit = suffix.trim_start_matches('_').replace("_s", "/s");
+            points.push((
+                format!(
+                    "{} {label} bound ({} {})",
+                    v.kind.name(),
+                    crate::eval::sig(value / to_si, 4),
+                    if unit.is_empty() { "-" } else { &unit }
+                ),
+                x,
+            ));
+        }
+    }
+    let mut out: Vec<String> = Vec::new();
+    let mut seen: Vec<String> = Vec::new();
+    for (label, x) in points {
+        let design = study.design_at(&x);
+        match model::evaluate(&design, &study.constants, &Options::default()) {
+            Ok(e) => {
+                for w in e.warnings {
+                    let key = format!("{label}|{}|{}", w.quantity, w.message);
+                    if !seen.contains(&key) {
+                        seen.push(key);
+                        out.push(format!(
+                            "at {label}: {} = {} (bound {}): {}",
+                            w.quantity, w.value, w.bound, w.message
+                        ));
+                    }
+                }
+            }
+            Err(e) => out.push(format!(
+                "at {label}: the model cannot evaluate this design: {e}"
+            )),
+        }
+    }
+    out
+}
+
+/// Run `stria check STUDY`: the resolved study on stdout, warnings and the verdict on stderr.
+pub fn run(path: &Path) -> Result<(), CliError> {
+    let (study, warnings) = Study::load(path)?;
+    print!("{}", study.to_resolved_toml());
+    for w in &warnings {
+        eprintln!("{w}");
+    }
+    let model_warnings = bound_warnings(&study);
+    for w in &model_warnings {
+        eprintln!("model warning: {w}");
+    }
+    eprintln!(
+        "{}: valid study \"{}\": {} variable(s), {} objective(s), {} constraint(s); {} input warning(s), {} model warning(s)",
+        path.display(),
+        study.name,
+        study.variables.len(),
+        study.objectives.len(),
+        study.constraints.len(),
+        warnings.len(),
+        model_warnings.len()
+    );
+    Ok(())
+}

@@ -1,0 +1,417 @@
+//! The one table of study-file keys: type, unit, default, allowed range, calibrated range and
+//! meaning. The parser, the unknown-key check, the resolved study and docs/study-reference.md
+//! are all driven by it, so they cannot drift apart.
+//!
+//! Unit scheme: every dimensional number carries its unit in the key name (`gap_mm`,
+//! `pitch_um`, `velocity_cm_s`, `temperature_C`, `feed_mol_m3`); a key without a unit suffix is
+//! dimensionless. Values are plain TOML numbers.
+
+/// What a key holds.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Kind {
+    /// A number (integers are accepted).
+    Float,
+    /// A whole number.
+    Int,
+    /// Free text.
+    Text,
+    /// One of a fixed set of words.
+    Choice(&'static [&'static str]),
+    /// A list of words from a fixed set (no repeats).
+    List(&'static [&'static str]),
+    /// A list of numbers.
+    FloatList,
+    /// A file path, relative to the study file.
+    Path,
+}
+
+impl Kind {
+    /// Short name for messages and the reference.
+    pub fn describe(&self) -> String {
+        match self {
+            Kind::Float => "number".into(),
+            Kind::Int => "integer".into(),
+            Kind::Text => "text".into(),
+            Kind::Choice(c) => format!("one of {}", quoted(c)),
+            Kind::List(c) => format!("list of {}", quoted(c)),
+            Kind::FloatList => "list of numbers".into(),
+            Kind::Path => "path".into(),
+        }
+    }
+}
+
+/// `"a", "b"` for a set of words.
+pub fn quoted(words: &[&str]) -> String {
+    words
+        .iter()
+        .map(|w| format!("\"{w}\""))
+        .collect::<Vec<_>>()
+        .join(", ")
+}
+
+/// A closed or open numeric interval.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Range {
+    /// Lower end.
+    pub lo: f64,
+    /// Upper end.
+    pub hi: f64,
+    /// Lower end excluded.
+    pub lo_open: bool,
+    /// Upper end excluded.
+    pub hi_open: bool,
+}
+
+impl Range {
+    /// Whether `v` lies in the interval.
+    pub fn contains(&self, v: f64) -> bool {
+        let lo_ok = if self.lo_open {
+            v > self.lo
+        } else {
+            v >= self.lo
+        };
+        let hi_ok = if self.hi_open {
+            v < self.hi
+        } else {
+            v <= self.hi
+        };
+        v.is_finite() && lo_ok && hi_ok
+    }
+
+    /// Text such as `> 0 and <= 10`.
+    pub fn describe(&self) -> String {
+        let lo = if self.lo_open { ">" } else { ">=" };
+        let hi = if self.hi_open { "<" } else { "<=" };
+        format!("{lo} {} and {hi} {}", self.lo, self.hi)
+    }
+}
+
+const fn closed(lo: f64, hi: f64) -> Option<Range> {
+    Some(Range {
+        lo,
+        hi,
+        lo_open: false,
+        hi_open: false,
+    })
+}
+
+const fn pos(hi: f64) -> Option<Range> {
+    Some(Range {
+        lo: 0.0,
+        hi,
+        lo_open: true,
+        hi_open: false,
+    })
+}
+
+const fn open_unit() -> Option<Range> {
+    Some(Range {
+        lo: 0.0,
+        hi: 1.0,
+        lo_open: true,
+        hi_open: true,
+    })
+}
+
+/// The default of a key.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum DefaultValue {
+    /// Must be given.
+    Required,
+    /// This TOML literal.
+    Value(&'static str),
+    /// Follows from another key or condition (explained in words).
+    Derived(&'static str),
+    /// Optional; no default (the feature is off when absent).
+    Unset,
+}
+
+/// One key of the study file.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct KeySpec {
+    /// Section, e.g. `channel` or `variables.pitch`.
+    pub section: &'static str,
+    /// Key within the section.
+    pub key: &'static str,
+    /// Type.
+    pub kind: Kind,
+    /// Unit as written in reports ("-" for dimensionless).
+    pub unit: &'static str,
+    /// Factor from the key's unit to SI (temperature is converted by an offset instead).
+    pub to_si: f64,
+    /// Default.
+    pub default: DefaultValue,
+    /// Physically allowed range; outside it is an error.
+    pub range: Option<Range>,
+    /// Range the model is calibrated for; outside it is a warning.
+    pub calibrated: Option<Range>,
+    /// Meaning.
+    pub doc: &'static str,
+    /// Budget keys may change between a run and its resume (excluded from the fingerprint).
+    pub budget: bool,
+}
+
+#[allow(clippy::too_many_arguments)]
+const fn k(
+    section: &'static str,
+    key: &'static str,
+    kind: Kind,
+    unit: &'static str,
+    to_si: f64,
+    default: DefaultValue,
+    range: Option<Range>,
+    calibrated: Option<Range>,
+    doc: &'static str,
+) -> KeySpec {
+    KeySpec {
+        section,
+        key,
+        kind,
+        unit,
+        to_si,
+        default,
+        range,
+        calibrated,
+        doc,
+        budget: false,
+    }
+}
+
+const fn budget(mut spec: KeySpec) -> KeySpec {
+    spec.budget = true;
+    spec
+}
+
+use DefaultValue::{Derived, Required, Unset, Value};
+use Kind::{Choice, Float, FloatList, Int, List, Path, Text};
+
+/// Salts the model knows.
+pub const SALTS: &[&str] = &["NaCl", "KCl", "custom"];
+/// Spacer choices.
+pub const SPACERS: &[&str] = &["none", "schock_miquel", "multiplier"];
+/// Pattern sides.
+pub const PATTERN_SIDES: &[&str] = &["cem", "aem", "both"];
+/// Flow arrangements.
+pub const FLOWS: &[&str] = &["co_current", "counter_current"];
+/// Length modes.
+pub const LENGTH_MODES: &[&str] = &["fixed", "product_target"];
+/// Objective keys.
+pub const OBJECTIVES: &[&str] = &[
+    "salt_removal_rate",
+    "specific_energy",
+    "membrane_cost",
+    "levelised_cost",
+    "salt_removal_fraction",
+];
+/// Algorithms.
+pub const ALGORITHMS: &[&str] = &["nsga2", "scalarised", "screening"];
+/// Single-objective solvers for scalarised runs.
+pub const SOLVERS: &[&str] = &["nelder_mead", "particle_swarm", "simulated_annealing"];
+/// Scalarisations.
+pub const SCALARISATIONS: &[&str] = &["weighted_sum", "chebyshev", "epsilon"];
+/// Screening samplers.
+pub const SAMPLERS: &[&str] = &["lhs", "sobol"];
+
+/// Sections in file order, with a one-line meaning.
+pub const SECTIONS: &[(&str, &str)] = &[
+    ("study", "What the study is called."),
+    ("water", "The feed water."),
+    ("channel", "Diluate and concentrate channels of one cell pair (and the spacer)."),
+    ("membranes", "The ion-exchange membranes and the stripe pattern."),
+    ("operation", "How the stack is driven and fed."),
+    ("economics", "Prices and plant figures for cost objectives."),
+    ("rom", "Overrides of the reduced-order-model constants (any key of the constants table)."),
+    ("variables.pitch", "Design variable: stripe pitch (CSV column `pitch_m`)."),
+    ("variables.open_fraction", "Design variable: open fraction (CSV column `open_fraction`)."),
+    ("variables.velocity", "Design variable: mean velocity of both streams (CSV column `velocity_m_s`)."),
+    ("variables.cell_pair_voltage", "Design variable: cell-pair voltage, voltage drive only (CSV column `cell_pair_voltage_V`)."),
+    ("variables.gap", "Design variable: channel gap (CSV column `gap_m`)."),
+    ("variables.length", "Design variable: channel length (CSV column `length_m`)."),
+    ("objectives", "What to optimise; each objective has a fixed direction."),
+    ("constraints", "Limits a design must respect to be feasible; each is optional."),
+    ("optimizer", "The search algorithm and its budget."),
+];
+
+/// Every key of the study file except the `[rom]` constants, which come from
+/// `model::RomConstants` (see [`rom_keys`]).
+pub const KEYS: &[KeySpec] = &[
+    k("study", "name", Text, "-", 1.0, Required, None, None, "Name of the study, used in reports and run summaries."),
+    k("study", "description", Text, "-", 1.0, Value("\"\""), None, None, "Free text for the report."),
+    k("water", "salt", Choice(SALTS), "-", 1.0, Value("\"NaCl\""), None, None, "Dissolved 1:1 salt; \"custom\" needs the four ionic data keys below."),
+    k("water", "temperature_C", Float, "C", 1.0, Required, Some(Range { lo: 0.0, hi: 100.0, lo_open: true, hi_open: true }), closed(5.0, 40.0), "Water temperature, degrees Celsius (property data are fitted from 5 to 40 C)."),
+    k("water", "feed_mol_m3", Float, "mol/m3", 1.0, Derived("give feed_mol_m3 or feed_g_L"), pos(6000.0), closed(1.0, 300.0), "Diluate feed concentration, mol/m3 (= mM)."),
+    k("water", "feed_g_L", Float, "g/L", 1.0, Derived("give feed_mol_m3 or feed_g_L"), pos(350.0), None, "Diluate feed concentration as mass of salt per litre, converted with molar_mass_g_mol."),
+    k("water", "concentrate_feed_mol_m3", Float, "mol/m3", 1.0, Derived("same as the diluate feed"), pos(6000.0), closed(1.0, 1000.0), "Concentrate feed concentration, mol/m3."),
+    k("water", "concentrate_feed_g_L", Float, "g/L", 1.0, Derived("same as the diluate feed"), pos(350.0), None, "Concentrate feed concentration, g/L."),
+    k("water", "molar_mass_g_mol", Float, "g/mol", 1.0, Derived("58.44 for NaCl, 74.55 for KCl; required for a custom salt given in g/L"), pos(1000.0), None, "Molar mass of the salt, for g/L inputs."),
+    k("water", "cation_diffusivity_m2_s", Float, "m2/s", 1.0, Derived("custom salt only"), pos(1e-7), None, "Custom salt: cation diffusivity at 25 C, infinite dilution."),
+    k("water", "anion_diffusivity_m2_s", Float, "m2/s", 1.0, Derived("custom salt only"), pos(1e-7), None, "Custom salt: anion diffusivity at 25 C, infinite dilution."),
+    k("water", "cation_conductivity_S_m2_mol", Float, "S m2/mol", 1.0, Derived("custom salt only"), pos(0.1), None, "Custom salt: cation limiting molar conductivity at 25 C."),
+    k("water", "anion_conductivity_S_m2_mol", Float, "S m2/mol", 1.0, Derived("custom salt only"), pos(0.1), None, "Custom salt: anion limiting molar conductivity at 25 C."),
+    k("channel", "gap_mm", Float, "mm", 1e-3, Required, pos(10.0), closed(0.1, 2.0), "Diluate channel gap, membrane to membrane."),
+    k("channel", "concentrate_gap_mm", Float, "mm", 1e-3, Derived("same as gap_mm (and follows it when gap is a variable)"), pos(10.0), closed(0.1, 2.0), "Concentrate channel gap."),
+    k("channel", "length_m", Float, "m", 1.0, Required, pos(20.0), closed(0.02, 3.0), "Flow-path length; in product-target mode the longest length searched."),
+    k("channel", "width_m", Float, "m", 1.0, Required, pos(5.0), None, "Channel width across the flow."),
+    k("channel", "spacer", Choice(SPACERS), "-", 1.0, Value("\"none\""), None, None, "Channel filling: open slit, Schock-Miquel spacer correlations, or open-slit correlations times factors."),
+    k("channel", "spacer_porosity", Float, "-", 1.0, Derived("0.85 with schock_miquel"), open_unit(), closed(0.7, 0.95), "Schock-Miquel spacer: volume fraction open to flow."),
+    k("channel", "spacer_shadow_factor", Float, "-", 1.0, Derived("1.0 with a spacer"), closed(1.0, 10.0), None, "Spacer: factor by which the spacer raises the solution resistance."),
+    k("channel", "spacer_sherwood_factor", Float, "-", 1.0, Derived("1.0 with multiplier"), pos(50.0), None, "Multiplier spacer: factor on the Sherwood number."),
+    k("channel", "spacer_friction_factor", Float, "-", 1.0, Derived("1.0 with multiplier"), pos(1000.0), None, "Multiplier spacer: factor on the pressure drop."),
+    k("membranes", "cem_transport_number", Float, "-", 1.0, Required, Some(Range { lo: 0.5, hi: 1.0, lo_open: false, hi_open: false }), closed(0.85, 1.0), "Counter-ion transport number in the cation-exchange membrane."),
+    k("membranes", "aem_transport_number", Float, "-", 1.0, Required, Some(Range { lo: 0.5, hi: 1.0, lo_open: false, hi_open: false }), closed(0.85, 1.0), "Counter-ion transport number in the anion-exchange membrane."),
+    k("membranes", "cem_area_resistance_ohm_cm2", Float, "Ohm cm2", 1e-4, Required, pos(1000.0), closed(0.5, 30.0), "Area resistance of the unpatterned CEM."),
+    k("membranes", "aem_area_resistance_ohm_cm2", Float, "Ohm cm2", 1e-4, Required, pos(1000.0), closed(0.5, 30.0), "Area resistance of the AEM."),
+    k("membranes", "pattern_side", Choice(PATTERN_SIDES), "-", 1.0, Value("\"cem\""), None, None, "Which membrane carries the inert stripes on its diluate side."),
+    k("membranes", "pitch_um", Float, "um", 1e-6, Required, pos(1e5), closed(20.0, 5000.0), "Stripe period along the flow."),
+    k("membranes", "open_fraction", Float, "-", 1.0, Required, pos(1.0), closed(0.1, 1.0), "Conducting share of each period (1 = unpatterned)."),
+    k("operation", "velocity_cm_s", Float, "cm/s", 1e-2, Required, pos(200.0), closed(0.2, 30.0), "Mean diluate velocity."),
+    k("operation", "concentrate_velocity_cm_s", Float, "cm/s", 1e-2, Derived("same as velocity_cm_s (and follows it when velocity is a variable)"), pos(200.0), closed(0.2, 30.0), "Mean concentrate velocity."),
+    k("operation", "cell_pair_voltage_V", Float, "V", 1.0, Derived("give cell_pair_voltage_V or cell_current_A"), pos(50.0), closed(0.05, 6.0), "Cell-pair voltage (potentiostatic drive)."),
+    k("operation", "cell_current_A", Float, "A", 1.0, Derived("give cell_pair_voltage_V or cell_current_A"), pos(1e4), None, "Current through one cell pair (galvanostatic drive)."),
+    k("operation", "flow", Choice(FLOWS), "-", 1.0, Value("\"co_current\""), None, None, "Relative direction of diluate and concentrate."),
+    k("operation", "length_mode", Choice(LENGTH_MODES), "-", 1.0, Value("\"fixed\""), None, None, "Fixed channel length, or the length that reaches product_target_mol_m3."),
+    k("operation", "product_target_mol_m3", Float, "mol/m3", 1.0, Derived("required with length_mode = \"product_target\""), pos(6000.0), None, "Wanted product concentration in product-target mode."),
+    k("economics", "currency", Text, "-", 1.0, Value("\"currency units\""), None, None, "Label of the currency of every price (reports only)."),
+    k("economics", "electricity_price_per_kWh", Float, "currency/kWh", 1.0, Required, closed(0.0, 100.0), None, "Electricity price."),
+    k("economics", "pump_efficiency", Float, "-", 1.0, Required, pos(1.0), closed(0.3, 0.9), "Wire-to-water efficiency of the pumps."),
+    k("economics", "membrane_price_per_m2", Float, "currency/m2", 1.0, Required, closed(0.0, 1e5), None, "Price of plain ion-exchange membrane."),
+    k("economics", "pattern_surcharge_per_m2", Float, "currency/m2", 1.0, Value("0.0"), closed(0.0, 1e5), None, "Extra price per m2 of patterned membrane."),
+    k("economics", "membrane_life_years", Float, "years", 1.0, Required, pos(100.0), None, "Membrane life."),
+    k("economics", "discount_rate_percent", Float, "%/yr", 1.0, Required, Some(Range { lo: 0.0, hi: 100.0, lo_open: false, hi_open: true }), None, "Discount rate for the capital recovery factor."),
+    k("economics", "operating_hours_per_year", Float, "h/yr", 1.0, Required, pos(8784.0), None, "Hours of operation per year."),
+    k("economics", "plant_capacity_m3_day", Float, "m3/day", 1.0, Required, pos(1e8), None, "Product capacity of the whole plant."),
+    k("rom", "constants_file", Path, "-", 1.0, Unset, None, None, "A constants file (e.g. written by `stria fit`), relative to the study file; keys given in [rom] override it."),
+    k("variables.pitch", "lower_um", Float, "um", 1e-6, Required, pos(1e5), closed(20.0, 5000.0), "Lower bound of the stripe pitch."),
+    k("variables.pitch", "upper_um", Float, "um", 1e-6, Required, pos(1e5), closed(20.0, 5000.0), "Upper bound of the stripe pitch."),
+    k("variables.open_fraction", "lower", Float, "-", 1.0, Required, pos(1.0), closed(0.1, 1.0), "Lower bound of the open fraction."),
+    k("variables.open_fraction", "upper", Float, "-", 1.0, Required, pos(1.0), closed(0.1, 1.0), "Upper bound of the open fraction."),
+    k("variables.velocity", "lower_cm_s", Float, "cm/s", 1e-2, Required, pos(200.0), closed(0.2, 30.0), "Lower bound of the mean velocity."),
+    k("variables.velocity", "upper_cm_s", Float, "cm/s", 1e-2, Required, pos(200.0), closed(0.2, 30.0), "Upper bound of the mean velocity."),
+    k("variables.cell_pair_voltage", "lower_V", Float, "V", 1.0, Required, pos(50.0), closed(0.05, 6.0), "Lower bound of the cell-pair voltage."),
+    k("variables.cell_pair_voltage", "upper_V", Float, "V", 1.0, Required, pos(50.0), closed(0.05, 6.0), "Upper bound of the cell-pair voltage."),
+    k("variables.gap", "lower_mm", Float, "mm", 1e-3, Required, pos(10.0), closed(0.1, 2.0), "Lower bound of the gap (both channels)."),
+    k("variables.gap", "upper_mm", Float, "mm", 1e-3, Required, pos(10.0), closed(0.1, 2.0), "Upper bound of the gap."),
+    k("variables.length", "lower_m", Float, "m", 1.0, Required, pos(20.0), closed(0.02, 3.0), "Lower bound of the channel length."),
+    k("variables.length", "upper_m", Float, "m", 1.0, Required, pos(20.0), closed(0.02, 3.0), "Upper bound of the channel length."),
+    k("objectives", "list", List(OBJECTIVES), "-", 1.0, Value("[\"salt_removal_rate\", \"specific_energy\"]"), None, None, "Objectives: salt_removal_rate (mol/(m2 s), maximised), specific_energy (kWh/m3, minimised), membrane_cost (currency per m3/day of capacity, minimised), levelised_cost (currency/m3, minimised), salt_removal_fraction (-, maximised)."),
+    k("constraints", "max_product_mol_m3", Float, "mol/m3", 1.0, Unset, pos(6000.0), None, "Highest allowed product (diluate outlet) concentration."),
+    k("constraints", "max_pressure_drop_kPa", Float, "kPa", 1e3, Unset, pos(1e4), None, "Highest allowed diluate pressure drop over the channel."),
+    k("constraints", "max_reynolds", Float, "-", 1.0, Unset, pos(1e6), None, "Highest allowed channel Reynolds number (laminar flow below about 2000 in an open slit)."),
+    k("optimizer", "algorithm", Choice(ALGORITHMS), "-", 1.0, Value("\"nsga2\""), None, None, "nsga2: multi-objective evolutionary search; scalarised: a sweep of single-objective sub-problems; screening: a space-filling sample."),
+    k("optimizer", "seed", Int, "-", 1.0, Value("1"), closed(0.0, 9.007e15), None, "Seed of every random number of the run."),
+    k("optimizer", "population", Int, "-", 1.0, Value("40"), closed(4.0, 1e6), None, "Population size (nsga2) or batch size (screening, scalarised)."),
+    budget(k("optimizer", "max_evaluations", Int, "-", 1.0, Value("2000"), closed(1.0, 1e13), None, "Evaluation budget (may be raised when resuming)."),),
+    budget(k("optimizer", "hours", Float, "h", 3600.0, Unset, pos(10000.0), None, "Wall-clock budget of one invocation of `stria run`."),),
+    budget(k("optimizer", "stall_generations", Int, "-", 1.0, Unset, closed(1.0, 1e9), None, "Stop when the hypervolume has not grown for this many generations."),),
+    k("optimizer", "archive_epsilon", FloatList, "objective units", 1.0, Unset, None, None, "Grid size per objective (in the objective's unit) that bounds the archive of a long run."),
+    k("optimizer", "solver", Choice(SOLVERS), "-", 1.0, Value("\"nelder_mead\""), None, None, "scalarised: single-objective solver of each sub-problem."),
+    k("optimizer", "scalarisation", Choice(SCALARISATIONS), "-", 1.0, Value("\"chebyshev\""), None, None, "scalarised: how objectives are combined."),
+    k("optimizer", "subproblems", Int, "-", 1.0, Value("11"), closed(1.0, 10000.0), None, "scalarised: number of weight vectors or epsilon levels."),
+    k("optimizer", "sampler", Choice(SAMPLERS), "-", 1.0, Value("\"lhs\""), None, None, "screening: Latin hypercube or Sobol sequence."),
+];
+
+/// Keys of `[rom]` besides `constants_file`: the serde names of `model::RomConstants`, with
+/// their defaults, in declaration order.
+pub fn rom_keys() -> Vec<(String, f64)> {
+    let value = serde_json::to_value(model::RomConstants::default()).unwrap_or_default();
+    let mut out = Vec::new();
+    if let serde_json::Value::Object(map) = value {
+        for (key, v) in map {
+            if let Some(x) = v.as_f64() {
+                out.push((key, x));
+            }
+        }
+    }
+    out
+}
+
+/// Look a key up.
+pub fn spec(section: &str, key: &str) -> Option<&'static KeySpec> {
+    KEYS.iter().find(|s| s.section == section && s.key == key)
+}
+
+/// Keys of one section.
+pub fn section_keys(section: &str) -> Vec<&'static str> {
+    KEYS.iter()
+        .filter(|s| s.section == section)
+        .map(|s| s.key)
+        .collect()
+}
+
+/// The closest of `candidates` to `word`, if close enough to be a likely typo.
+pub fn closest<'a>(word: &str, candidates: impl IntoIterator<Item = &'a str>) -> Option<&'a str> {
+    let mut best: Option<(&str, f64)> = None;
+    for c in candidates {
+        let score = strsim::jaro_winkler(&word.to_lowercase(), &c.to_lowercase());
+        if best.is_none_or(|(_, b)| score > b) {
+            best = Some((c, score));
+        }
+    }
+    best.filter(|(_, s)| *s >= 0.8).map(|(c, _)| c)
+}
+
+fn md_escape(s: &str) -> String {
+    s.replace('|', "\\|")
+}
+
+/// The reference of every key as Markdown: the text of docs/study-reference.md.
+pub fn reference_markdown() -> String {
+    let mut out = String::new();
+    out.push_str("# Study file reference\n\n");
+    out.push_str(
+        "Generated from the key table in `studies/src/study/keys.rs` by `stria keys`; a test \
+         keeps this file equal to that output.\n\n",
+    );
+    out.push_str(
+        "A study is one TOML file. Every dimensional number carries its unit in the key name \
+         (`gap_mm`, `pitch_um`, `velocity_cm_s`, `temperature_C`, `feed_mol_m3`); a key without \
+         a unit suffix is dimensionless. Unknown keys are errors (with a suggestion). A value \
+         outside \"allowed\" is an error; a value outside \"calibrated\" is accepted with a \
+         warning. `stria check STUDY.toml` prints the study with every default made explicit; \
+         `stria eval STUDY.toml --set section.key=value` changes one key from the command line.\n\n",
+    );
+    for (section, doc) in SECTIONS {
+        out.push_str(&format!("## [{section}]\n\n{doc}\n\n"));
+        out.push_str("| key | type | unit | default | allowed | calibrated | meaning |\n");
+        out.push_str("|---|---|---|---|---|---|---|\n");
+        for s in KEYS.iter().filter(|s| s.section == *section) {
+            let default = match s.default {
+                Required => "required".to_string(),
+                Value(v) => format!("`{v}`"),
+                Derived(d) => d.to_string(),
+                Unset => "not set".to_string(),
+            };
+            let range = s.range.map(|r| r.describe()).unwrap_or_default();
+            let cal = s.calibrated.map(|r| r.describe()).unwrap_or_default();
+            out.push_str(&format!(
+                "| `{}` | {} | {} | {} | {} | {} | {}{} |\n",
+                s.key,
+                md_escape(&s.kind.describe()),
+                s.unit,
+                md_escape(&default),
+                range,
+                cal,
+                md_escape(s.doc),
+                if s.budget {
+                    " May change on resume."
+                } else {
+                    ""
+                }
+            ));
+        }
+        if *section == "rom" {
+            for (key, default) in rom_keys() {
+                out.push_str(&format!(
+                    "| `{key}` | number | - | `{default}` | finite | | ROM constant `{key}` (see the model's constants table for meaning and source). |\n"
+                ));
+            }
+        }
+        out.push('\n');
+    }
+    out.push_str(
+        "Bounds of a variable use the unit of their key and must lie in that quantity's allowed \
+         range, with lower < upper. A variable whose section is absent is held at the baseline \
+         value of the study.\n",
+    );
+    out
+}

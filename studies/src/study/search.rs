@@ -1,0 +1,310 @@
+//! What a study searches: design variables, objectives, constraints and optimiser settings.
+
+use model::{Design, Drive, Evaluation};
+use serde::Serialize;
+
+/// A design quantity that a study can vary.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+pub enum VariableKind {
+    /// Stripe pitch.
+    Pitch,
+    /// Open fraction.
+    OpenFraction,
+    /// Mean velocity of both streams (the concentrate follows unless given separately).
+    Velocity,
+    /// Cell-pair voltage (voltage drive).
+    CellPairVoltage,
+    /// Channel gap (the concentrate gap follows unless given separately).
+    Gap,
+    /// Channel length.
+    Length,
+}
+
+impl VariableKind {
+    /// All, in file order.
+    pub const ALL: [VariableKind; 6] = [
+        VariableKind::Pitch,
+        VariableKind::OpenFraction,
+        VariableKind::Velocity,
+        VariableKind::CellPairVoltage,
+        VariableKind::Gap,
+        VariableKind::Length,
+    ];
+
+    /// Name in the study file (`[variables.<name>]`).
+    pub fn name(self) -> &'static str {
+        match self {
+            VariableKind::Pitch => "pitch",
+            VariableKind::OpenFraction => "open_fraction",
+            VariableKind::Velocity => "velocity",
+            VariableKind::CellPairVoltage => "cell_pair_voltage",
+            VariableKind::Gap => "gap",
+            VariableKind::Length => "length",
+        }
+    }
+
+    /// CSV column and SI name (contract).
+    pub fn column(self) -> &'static str {
+        match self {
+            VariableKind::Pitch => "pitch_m",
+            VariableKind::OpenFraction => "open_fraction",
+            VariableKind::Velocity => "velocity_m_s",
+            VariableKind::CellPairVoltage => "cell_pair_voltage_V",
+            VariableKind::Gap => "gap_m",
+            VariableKind::Length => "length_m",
+        }
+    }
+
+    /// SI unit.
+    pub fn unit(self) -> &'static str {
+        match self {
+            VariableKind::Pitch | VariableKind::Gap | VariableKind::Length => "m",
+            VariableKind::OpenFraction => "-",
+            VariableKind::Velocity => "m/s",
+            VariableKind::CellPairVoltage => "V",
+        }
+    }
+
+    /// The unit suffix of the bound keys (`lower_um`), and the factor to SI.
+    pub fn bound_unit(self) -> (&'static str, f64) {
+        match self {
+            VariableKind::Pitch => ("_um", 1e-6),
+            VariableKind::OpenFraction => ("", 1.0),
+            VariableKind::Velocity => ("_cm_s", 1e-2),
+            VariableKind::CellPairVoltage => ("_V", 1.0),
+            VariableKind::Gap => ("_mm", 1e-3),
+            VariableKind::Length => ("_m", 1.0),
+        }
+    }
+
+    /// The baseline value in SI.
+    pub fn get(self, d: &Design) -> f64 {
+        match self {
+            VariableKind::Pitch => d.membranes.pitch_m,
+            VariableKind::OpenFraction => d.membranes.open_fraction,
+            VariableKind::Velocity => d.operation.velocity_m_s,
+            VariableKind::CellPairVoltage => match d.operation.drive {
+                Drive::Voltage {
+                    cell_pair_voltage_v,
+                } => cell_pair_voltage_v,
+                Drive::Current { .. } => f64::NAN,
+            },
+            VariableKind::Gap => d.channel.gap_m,
+            VariableKind::Length => d.channel.length_m,
+        }
+    }
+}
+
+/// One searched variable, bounds in SI.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct DesignVariable {
+    /// Which quantity.
+    pub kind: VariableKind,
+    /// Lower bound, SI.
+    pub lower: f64,
+    /// Upper bound, SI.
+    pub upper: f64,
+}
+
+/// An objective with its fixed direction.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+pub enum Objective {
+    /// Salt removal rate per membrane area, mol/(m2 s), maximised.
+    SaltRemovalRate,
+    /// Specific energy, kWh/m3, minimised.
+    SpecificEnergy,
+    /// Membrane cost per production capacity, currency per (m3/day), minimised.
+    MembraneCost,
+    /// Levelised cost of water, currency/m3, minimised.
+    LevelisedCost,
+    /// Salt removal fraction, -, maximised.
+    SaltRemovalFraction,
+}
+
+impl Objective {
+    /// From its study-file key.
+    pub fn from_key(key: &str) -> Option<Objective> {
+        Some(match key {
+            "salt_removal_rate" => Objective::SaltRemovalRate,
+            "specific_energy" => Objective::SpecificEnergy,
+            "membrane_cost" => Objective::MembraneCost,
+            "levelised_cost" => Objective::LevelisedCost,
+            "salt_removal_fraction" => Objective::SaltRemovalFraction,
+            _ => return None,
+        })
+    }
+
+    /// Study-file key.
+    pub fn key(self) -> &'static str {
+        match self {
+            Objective::SaltRemovalRate => "salt_removal_rate",
+            Objective::SpecificEnergy => "specific_energy",
+            Objective::MembraneCost => "membrane_cost",
+            Objective::LevelisedCost => "levelised_cost",
+            Objective::SaltRemovalFraction => "salt_removal_fraction",
+        }
+    }
+
+    /// Unit.
+    pub fn unit(self) -> &'static str {
+        match self {
+            Objective::SaltRemovalRate => "mol/(m2 s)",
+            Objective::SpecificEnergy => "kWh/m3",
+            Objective::MembraneCost => "currency/(m3/day)",
+            Objective::LevelisedCost => "currency/m3",
+            Objective::SaltRemovalFraction => "-",
+        }
+    }
+
+    /// CSV column: key and unit.
+    pub fn column(self) -> &'static str {
+        match self {
+            Objective::SaltRemovalRate => "salt_removal_rate_mol_m2_s",
+            Objective::SpecificEnergy => "specific_energy_kWh_m3",
+            Objective::MembraneCost => "membrane_cost_per_m3_day",
+            Objective::LevelisedCost => "levelised_cost_per_m3",
+            Objective::SaltRemovalFraction => "salt_removal_fraction",
+        }
+    }
+
+    /// Whether larger is better.
+    pub fn maximise(self) -> bool {
+        matches!(
+            self,
+            Objective::SaltRemovalRate | Objective::SaltRemovalFraction
+        )
+    }
+
+    /// "max" or "min".
+    pub fn direction(self) -> &'static str {
+        if self.maximise() {
+            "max"
+        } else {
+            "min"
+        }
+    }
+
+    /// Value in its natural direction.
+    pub fn value(self, e: &Evaluation) -> f64 {
+        match self {
+            Objective::SaltRemovalRate => e.economics.salt_removal_rate_mol_m2_s,
+            Objective::SpecificEnergy => e.performance.specific_energy_kWh_m3,
+            Objective::MembraneCost => e.economics.membrane_cost_per_m3_day,
+            Objective::LevelisedCost => e.economics.levelised_cost_per_m3,
+            Objective::SaltRemovalFraction => e.performance.salt_removal_fraction,
+        }
+    }
+
+    /// The minimised form the optimiser sees.
+    pub fn to_minimised(self, natural: f64) -> f64 {
+        if self.maximise() {
+            -natural
+        } else {
+            natural
+        }
+    }
+}
+
+/// An inequality constraint; limits in SI.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub enum Constraint {
+    /// Product concentration at most this, mol/m3.
+    MaxProduct(f64),
+    /// Diluate pressure drop at most this, Pa.
+    MaxPressureDrop(f64),
+    /// Reynolds number at most this.
+    MaxReynolds(f64),
+}
+
+impl Constraint {
+    /// Study-file key.
+    pub fn key(self) -> &'static str {
+        match self {
+            Constraint::MaxProduct(_) => "max_product_mol_m3",
+            Constraint::MaxPressureDrop(_) => "max_pressure_drop_kPa",
+            Constraint::MaxReynolds(_) => "max_reynolds",
+        }
+    }
+
+    /// CSV column of the normalised constraint value g (feasible when g <= 0).
+    pub fn column(self) -> &'static str {
+        match self {
+            Constraint::MaxProduct(_) => "g_product_concentration",
+            Constraint::MaxPressureDrop(_) => "g_pressure_drop",
+            Constraint::MaxReynolds(_) => "g_reynolds",
+        }
+    }
+
+    /// The limit.
+    pub fn limit(self) -> f64 {
+        match self {
+            Constraint::MaxProduct(v)
+            | Constraint::MaxPressureDrop(v)
+            | Constraint::MaxReynolds(v) => v,
+        }
+    }
+
+    /// The constrained quantity of an evaluation, SI.
+    pub fn quantity(self, e: &Evaluation) -> f64 {
+        match self {
+            Constraint::MaxProduct(_) => e.performance.outlet_concentration_mol_m3,
+            Constraint::MaxPressureDrop(_) => e.hydraulics.pressure_drop_Pa,
+            Constraint::MaxReynolds(_) => e.hydraulics.reynolds,
+        }
+    }
+
+    /// Normalised g = quantity / limit - 1 (g <= 0 feasible), so violations of different
+    /// constraints are comparable.
+    pub fn g(self, e: &Evaluation) -> f64 {
+        self.quantity(e) / self.limit() - 1.0
+    }
+}
+
+/// Which search.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+pub enum AlgorithmChoice {
+    /// NSGA-II.
+    Nsga2,
+    /// Sweep of scalarised single-objective problems.
+    Scalarised,
+    /// Space-filling screening sample.
+    Screening,
+}
+
+impl AlgorithmChoice {
+    /// Study-file word.
+    pub fn key(self) -> &'static str {
+        match self {
+            AlgorithmChoice::Nsga2 => "nsga2",
+            AlgorithmChoice::Scalarised => "scalarised",
+            AlgorithmChoice::Screening => "screening",
+        }
+    }
+}
+
+/// The `[optimizer]` section, checked.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct OptimizerSettings {
+    /// Algorithm.
+    pub algorithm: AlgorithmChoice,
+    /// Seed.
+    pub seed: u64,
+    /// Population or batch size.
+    pub population: usize,
+    /// Evaluation budget.
+    pub max_evaluations: u64,
+    /// Wall-clock budget, hours.
+    pub hours: Option<f64>,
+    /// Stall criterion, generations.
+    pub stall_generations: Option<u64>,
+    /// Archive grid, per objective in natural units.
+    pub archive_epsilon: Option<Vec<f64>>,
+    /// Scalarised: solver word.
+    pub solver: String,
+    /// Scalarised: scalarisation word.
+    pub scalarisation: String,
+    /// Scalarised: number of sub-problems.
+    pub subproblems: usize,
+    /// Screening: sampler word.
+    pub sampler: String,
+}
