@@ -361,11 +361,20 @@ mod tests {
     #[test]
     fn bad_files_name_line_and_column() {
         let e = err("curve,layer_voltage_V\na,1\n");
-        assert!(e.contains("d.csv:1") && e.contains("current_density_A_m2"), "{e}");
+        assert!(
+            e.contains("d.csv:1") && e.contains("current_density_A_m2"),
+            "{e}"
+        );
         let e = err("curve,layer_voltage_V,current_density_A_m2\na,1,x\n");
-        assert!(e.contains("d.csv:2") && e.contains("current_density_A_m2") && e.contains("`x`"), "{e}");
+        assert!(
+            e.contains("d.csv:2") && e.contains("current_density_A_m2") && e.contains("`x`"),
+            "{e}"
+        );
         let e = err("curve,layer_voltage_V,current_density_A_m2\na,1,2\nb,1,-3\n");
-        assert!(e.contains("d.csv:3") && e.contains("current_density_A_m2") && e.contains(">= 0"), "{e}");
+        assert!(
+            e.contains("d.csv:3") && e.contains("current_density_A_m2") && e.contains(">= 0"),
+            "{e}"
+        );
         let e = err("");
         assert!(e.contains("empty"), "{e}");
         let e = err("curve,layer_voltage_V,current_density_A_m2\n");

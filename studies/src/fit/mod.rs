@@ -69,13 +69,17 @@ pub fn conditions(data: &DataSet, study: &Study) -> (Vec<InterfaceConditions>, V
         .collect();
     let study_value = |col: &str| -> String {
         match col {
-            "concentration_mol_m3" => format!("{} mol/m^3 (feed)", b.water.feed_concentration_mol_m3),
+            "concentration_mol_m3" => {
+                format!("{} mol/m^3 (feed)", b.water.feed_concentration_mol_m3)
+            }
             "velocity_m_s" => format!("{} m/s", b.operation.velocity_m_s),
             "pitch_m" => format!("{} m", b.membranes.pitch_m),
             "open_fraction" => format!("{}", b.membranes.open_fraction),
             "gap_m" => format!("{} m", b.channel.gap_m),
             "temperature_K" => format!("{} K", b.water.temperature_k),
-            "position_m" => format!("{default_position} m (mid-channel, where the hand-off window sits)"),
+            "position_m" => {
+                format!("{default_position} m (mid-channel, where the hand-off window sits)")
+            }
             _ => String::new(),
         }
     };
@@ -84,8 +88,15 @@ pub fn conditions(data: &DataSet, study: &Study) -> (Vec<InterfaceConditions>, V
         .from_study
         .iter()
         .map(|(col, k)| {
-            let rows = if *k == n { "all rows".to_string() } else { format!("{k} of {n} rows") };
-            format!("{col} not given for {rows}: taken from the study, {}", study_value(col))
+            let rows = if *k == n {
+                "all rows".to_string()
+            } else {
+                format!("{k} of {n} rows")
+            };
+            format!(
+                "{col} not given for {rows}: taken from the study, {}",
+                study_value(col)
+            )
         })
         .collect();
     notes.push(format!(
@@ -120,20 +131,31 @@ pub fn calibrate(data: &DataSet, study: &Study, keys: &[String]) -> Result<Calib
             heterogeneous_limit_a_m2: s.heterogeneous_limit_a_m2,
         })
     };
-    let result = solve::fit(&keys, &study.constants, &currents, &patterned, forward, SEED)
-        .map_err(|r| {
-            CliError::input(
-                &data.file,
-                None,
-                "--fit",
-                format!("the fit is refused: {}", r.0),
-                format!(
-                    "fittable constants {} (default {}), with data that inform each",
-                    solve::BOUNDS.iter().map(|b| b.key).collect::<Vec<_>>().join(", "),
-                    solve::DEFAULT_FIT.join(", ")
-                ),
-            )
-        })?;
+    let result = solve::fit(
+        &keys,
+        &study.constants,
+        &currents,
+        &patterned,
+        forward,
+        SEED,
+    )
+    .map_err(|r| {
+        CliError::input(
+            &data.file,
+            None,
+            "--fit",
+            format!("the fit is refused: {}", r.0),
+            format!(
+                "fittable constants {} (default {}), with data that inform each",
+                solve::BOUNDS
+                    .iter()
+                    .map(|b| b.key)
+                    .collect::<Vec<_>>()
+                    .join(", "),
+                solve::DEFAULT_FIT.join(", ")
+            ),
+        )
+    })?;
     Ok(Calibration {
         conditions: conds,
         voltage_thermal: vt,
@@ -158,7 +180,9 @@ pub fn constants_toml(cal: &Calibration, data_file: &Path) -> Result<String, Cli
     for (k, v, s) in &cal.result.parameters {
         head.push_str(&format!("# fitted: {k} = {v:.6} +- {s:.3} (one sigma)\n"));
     }
-    head.push_str("# Every other key is the value the fit started from (the study's constants).\n\n");
+    head.push_str(
+        "# Every other key is the value the fit started from (the study's constants).\n\n",
+    );
     Ok(head + &body)
 }
 
@@ -172,7 +196,12 @@ pub fn plot(data: &DataSet, cal: &Calibration) -> Result<String, CliError> {
         let colour = ci + 1;
         let pts: Vec<(f64, f64)> = idx
             .iter()
-            .map(|&k| (data.points[k].layer_voltage_v, data.points[k].current_density_a_m2))
+            .map(|&k| {
+                (
+                    data.points[k].layer_voltage_v,
+                    data.points[k].current_density_a_m2,
+                )
+            })
             .collect();
         let first = idx[0];
         let vmax = idx
@@ -229,7 +258,12 @@ pub fn per_curve(data: &DataSet, cal: &Calibration) -> Vec<(String, usize, f64, 
 }
 
 /// `stria fit`.
-pub fn run(data_path: &Path, study_path: &Path, fit: &[String], out: Option<&Path>) -> Result<(), CliError> {
+pub fn run(
+    data_path: &Path,
+    study_path: &Path,
+    fit: &[String],
+    out: Option<&Path>,
+) -> Result<(), CliError> {
     let data = data::read(data_path)?;
     let (study, _) = Study::load(study_path)?;
     let cal = calibrate(&data, &study, fit)?;
@@ -243,7 +277,12 @@ pub fn run(data_path: &Path, study_path: &Path, fit: &[String], out: Option<&Pat
     write_atomic(&plot_path, svg_text.as_bytes()).map_err(|e| io_error("write", &plot_path, e))?;
 
     let r = &cal.result;
-    println!("Fitted {} points of {} curve(s) from {}", data.points.len(), data.curves().len(), data_path.display());
+    println!(
+        "Fitted {} points of {} curve(s) from {}",
+        data.points.len(),
+        data.curves().len(),
+        data_path.display()
+    );
     for n in &cal.notes {
         println!("  note: {n}");
     }
@@ -253,7 +292,9 @@ pub fn run(data_path: &Path, study_path: &Path, fit: &[String], out: Option<&Pat
         println!("  {k:<26} {start:>10.4} -> {v:>10.4} +- {s:.3}");
     }
     for k in &r.at_bound {
-        println!("  warning: {k} ended at its bound: the data may not inform it, or the bound is wrong");
+        println!(
+            "  warning: {k} ended at its bound: the data may not inform it, or the bound is wrong"
+        );
     }
     let p = r.parameters.len();
     for a in 0..p {
@@ -270,13 +311,21 @@ pub fn run(data_path: &Path, study_path: &Path, fit: &[String], out: Option<&Pat
     for (c, n, rms, max) in per_curve(&data, &cal) {
         println!("  {c:<24} {n:>3} points  RMS {rms:.4} A/m^2  largest {max:.4} A/m^2");
     }
-    let mean = data.points.iter().map(|p| p.current_density_a_m2).sum::<f64>() / data.points.len() as f64;
+    let mean = data
+        .points
+        .iter()
+        .map(|p| p.current_density_a_m2)
+        .sum::<f64>()
+        / data.points.len() as f64;
     println!(
         "RMS error {:.4} A/m^2 ({:.2} % of the mean current density)",
         r.rms_a_m2,
         100.0 * r.rms_a_m2 / mean.max(1e-300)
     );
     println!("Wrote {} and {}", out.display(), plot_path.display());
-    println!("Use it: in the study's [rom] section, constants_file = \"{}\"", out.display());
+    println!(
+        "Use it: in the study's [rom] section, constants_file = \"{}\"",
+        out.display()
+    );
     Ok(())
 }

@@ -24,20 +24,75 @@ pub struct Bound {
 
 /// Fittable constants and their bounds.
 pub const BOUNDS: [Bound; 10] = [
-    Bound { key: "onset_voltage", lower: 2.0, upper: 60.0, why: "onset of order 10-30 thermal voltages (Rubinstein and Zaltzman 2000), widened" },
-    Bound { key: "overlimiting_conductance", lower: 1e-4, upper: 2.0, why: "positive; above 2 i_lim per thermal unit is far beyond reported overlimiting slopes" },
-    Bound { key: "overlimiting_exponent", lower: 0.5, upper: 3.0, why: "shape exponent of the overlimiting branch" },
-    Bound { key: "wavelength_prefactor", lower: 0.1, upper: 10.0, why: "vortices of the order of the depleted layer" },
-    Bound { key: "wavelength_exponent", lower: 0.0, upper: 2.0, why: "growth of the vortex size with voltage" },
-    Bound { key: "lockin_width", lower: 0.05, upper: 3.0, why: "width of the lock-in window in ln(pitch / wavelength)" },
-    Bound { key: "alpha_0", lower: 0.01, upper: 0.9, why: "a share of the surface" },
-    Bound { key: "alpha_max", lower: 0.02, upper: 1.0, why: "a share of the surface" },
-    Bound { key: "best_open_fraction", lower: 0.05, upper: 0.95, why: "an open fraction" },
-    Bound { key: "funnel_scale", lower: 0.01, upper: 100.0, why: "pitch / delta of the funnelling transition" },
+    Bound {
+        key: "onset_voltage",
+        lower: 2.0,
+        upper: 60.0,
+        why: "onset of order 10-30 thermal voltages (Rubinstein and Zaltzman 2000), widened",
+    },
+    Bound {
+        key: "overlimiting_conductance",
+        lower: 1e-4,
+        upper: 2.0,
+        why: "positive; above 2 i_lim per thermal unit is far beyond reported overlimiting slopes",
+    },
+    Bound {
+        key: "overlimiting_exponent",
+        lower: 0.5,
+        upper: 3.0,
+        why: "shape exponent of the overlimiting branch",
+    },
+    Bound {
+        key: "wavelength_prefactor",
+        lower: 0.1,
+        upper: 10.0,
+        why: "vortices of the order of the depleted layer",
+    },
+    Bound {
+        key: "wavelength_exponent",
+        lower: 0.0,
+        upper: 2.0,
+        why: "growth of the vortex size with voltage",
+    },
+    Bound {
+        key: "lockin_width",
+        lower: 0.05,
+        upper: 3.0,
+        why: "width of the lock-in window in ln(pitch / wavelength)",
+    },
+    Bound {
+        key: "alpha_0",
+        lower: 0.01,
+        upper: 0.9,
+        why: "a share of the surface",
+    },
+    Bound {
+        key: "alpha_max",
+        lower: 0.02,
+        upper: 1.0,
+        why: "a share of the surface",
+    },
+    Bound {
+        key: "best_open_fraction",
+        lower: 0.05,
+        upper: 0.95,
+        why: "an open fraction",
+    },
+    Bound {
+        key: "funnel_scale",
+        lower: 0.01,
+        upper: 100.0,
+        why: "pitch / delta of the funnelling transition",
+    },
 ];
 
 /// The default set of fitted constants.
-pub const DEFAULT_FIT: [&str; 4] = ["onset_voltage", "overlimiting_conductance", "lockin_width", "alpha_max"];
+pub const DEFAULT_FIT: [&str; 4] = [
+    "onset_voltage",
+    "overlimiting_conductance",
+    "lockin_width",
+    "alpha_max",
+];
 
 /// Read a constant by its serde key.
 pub fn get(c: &RomConstants, key: &str) -> Option<f64> {
@@ -213,7 +268,11 @@ where
         })
         .collect();
     let n_over = over.iter().filter(|o| **o).count();
-    let n_over_pattern = over.iter().zip(patterned).filter(|(o, pt)| **o && **pt).count();
+    let n_over_pattern = over
+        .iter()
+        .zip(patterned)
+        .filter(|(o, pt)| **o && **pt)
+        .count();
     let overlimiting_keys = [
         "onset_voltage",
         "overlimiting_conductance",
@@ -303,7 +362,9 @@ where
         .ok_or_else(|| Refusal("the model failed at the fitted constants".into()))?;
     let ssr: f64 = residuals.iter().map(|r| r * r).sum();
     if !ssr.is_finite() {
-        return Err(Refusal("no start reached a finite misfit: the model fails for these data".into()));
+        return Err(Refusal(
+            "no start reached a finite misfit: the model fails for these data".into(),
+        ));
     }
 
     // Jacobian of the residuals in physical parameters, central differences.
@@ -317,13 +378,18 @@ where
         let ru = cost.residuals(&up);
         let rd = cost.residuals(&dn);
         let (Some(ru), Some(rd)) = (ru, rd) else {
-            return Err(Refusal(format!("the model failed near the fitted `{}`", bounds[j].key)));
+            return Err(Refusal(format!(
+                "the model failed near the fitted `{}`",
+                bounds[j].key
+            )));
         };
         for k in 0..n {
             jac[k][j] = (ru[k] - rd[k]) / (up[j] - dn[j]);
         }
     }
-    let data_scale = (data.iter().map(|d| d * d).sum::<f64>() / n as f64).sqrt().max(1e-30);
+    let data_scale = (data.iter().map(|d| d * d).sum::<f64>() / n as f64)
+        .sqrt()
+        .max(1e-30);
     for j in 0..p {
         let norm = (jac.iter().map(|r| r[j] * r[j]).sum::<f64>()).sqrt();
         // change of the fit over the whole bound range, relative to the data
@@ -359,12 +425,10 @@ where
                 .collect()
         })
         .collect::<Vec<Vec<f64>>>();
-    if correlation
-        .iter()
-        .flatten()
-        .any(|r: &f64| !r.is_finite())
-    {
-        return Err(Refusal("the curvature of the misfit is not positive definite; fit fewer constants".into()));
+    if correlation.iter().flatten().any(|r: &f64| !r.is_finite()) {
+        return Err(Refusal(
+            "the curvature of the misfit is not positive definite; fit fewer constants".into(),
+        ));
     }
     let at_bound = bounds
         .iter()
@@ -447,18 +511,44 @@ mod tests {
     /// i = i_lim (1 - exp(-v/2)) + i_lim g max(0, v - v_c) (model design section 4).
     fn toy(v: f64, c: &RomConstants) -> Predicted {
         let ilim = 20.0;
-        let ec = if v > c.onset_voltage { ilim * c.overlimiting_conductance * (v - c.onset_voltage) } else { 0.0 };
-        Predicted { current_density_a_m2: ilim * (1.0 - (-v / 2.0).exp()) + ec, heterogeneous_limit_a_m2: ilim }
+        let ec = if v > c.onset_voltage {
+            ilim * c.overlimiting_conductance * (v - c.onset_voltage)
+        } else {
+            0.0
+        };
+        Predicted {
+            current_density_a_m2: ilim * (1.0 - (-v / 2.0).exp()) + ec,
+            heterogeneous_limit_a_m2: ilim,
+        }
     }
 
     #[test]
     fn recovers_a_line_beyond_onset_and_refuses_underlimiting_data() {
-        let truth = set(&set(&RomConstants::default(), "onset_voltage", 14.0).unwrap(), "overlimiting_conductance", 0.08).unwrap();
+        let truth = set(
+            &set(&RomConstants::default(), "onset_voltage", 14.0).unwrap(),
+            "overlimiting_conductance",
+            0.08,
+        )
+        .unwrap();
         let v: Vec<f64> = (0..30).map(|k| k as f64 * 1.5).collect();
         let mut rng = ChaCha8Rng::seed_from_u64(1);
-        let data: Vec<f64> = v.iter().map(|v| toy(*v, &truth).current_density_a_m2 + 0.1 * normal(&mut rng)).collect();
-        let keys = vec!["onset_voltage".to_string(), "overlimiting_conductance".to_string()];
-        let r = fit(&keys, &RomConstants::default(), &data, &vec![false; v.len()], |k, c| Some(toy(v[k], c)), 7).unwrap();
+        let data: Vec<f64> = v
+            .iter()
+            .map(|v| toy(*v, &truth).current_density_a_m2 + 0.1 * normal(&mut rng))
+            .collect();
+        let keys = vec![
+            "onset_voltage".to_string(),
+            "overlimiting_conductance".to_string(),
+        ];
+        let r = fit(
+            &keys,
+            &RomConstants::default(),
+            &data,
+            &vec![false; v.len()],
+            |k, c| Some(toy(v[k], c)),
+            7,
+        )
+        .unwrap();
         let (_, vc, svc) = &r.parameters[0];
         let (_, g, sg) = &r.parameters[1];
         assert!((vc - 14.0).abs() < 3.0 * svc && *svc < 1.0, "{vc} +- {svc}");
@@ -466,9 +556,25 @@ mod tests {
         assert!(r.rms_a_m2 < 0.15);
         // below the limit only: the overlimiting constants are not informed
         let low: Vec<f64> = data[..6].to_vec();
-        let e = fit(&keys, &RomConstants::default(), &low, &[false; 6], |k, c| Some(toy(v[k], c)), 7).unwrap_err();
+        let e = fit(
+            &keys,
+            &RomConstants::default(),
+            &low,
+            &[false; 6],
+            |k, c| Some(toy(v[k], c)),
+            7,
+        )
+        .unwrap_err();
         assert!(e.0.contains("cannot inform `onset_voltage`"), "{}", e.0);
-        let e = fit(&keys, &RomConstants::default(), &data[..3], &[false; 3], |k, c| Some(toy(v[k], c)), 7).unwrap_err();
+        let e = fit(
+            &keys,
+            &RomConstants::default(),
+            &data[..3],
+            &[false; 3],
+            |k, c| Some(toy(v[k], c)),
+            7,
+        )
+        .unwrap_err();
         assert!(e.0.contains("too few points"), "{}", e.0);
     }
 
@@ -476,7 +582,11 @@ mod tests {
     fn inverse_of_a_known_matrix() {
         let inv = invert(&[vec![4.0, 2.0], vec![2.0, 3.0]]).unwrap();
         // exact inverse: 1/8 [[3, -2], [-2, 4]]
-        assert!((inv[0][0] - 0.375).abs() < 1e-12 && (inv[0][1] + 0.25).abs() < 1e-12 && (inv[1][1] - 0.5).abs() < 1e-12);
+        assert!(
+            (inv[0][0] - 0.375).abs() < 1e-12
+                && (inv[0][1] + 0.25).abs() < 1e-12
+                && (inv[1][1] - 0.5).abs() < 1e-12
+        );
         assert!(invert(&[vec![1.0, 1.0], vec![1.0, 1.0]]).is_none());
     }
 }

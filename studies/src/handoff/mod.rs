@@ -283,7 +283,9 @@ pub fn run(dir: &Path, picks: &[u64], out: Option<&Path>) -> Result<(), CliError
             });
         }
     }
-    let out: PathBuf = out.map(Path::to_path_buf).unwrap_or_else(|| dir.join("handoff"));
+    let out: PathBuf = out
+        .map(Path::to_path_buf)
+        .unwrap_or_else(|| dir.join("handoff"));
     for p in &prepared {
         let folder = out.join(&p.folder);
         std::fs::create_dir_all(&folder).map_err(|e| io_error("create", &folder, e))?;

@@ -1,4 +1,426 @@
-//! `stria report`: figures and a self-contained HTML page for a run.
+//! `stria report DIR`: SVG figures and one self-contained HTML page for a run directory.
+//!
+//! Written to `DIR/report/`: `report.html` (every figure inlined, no external file, script or
+//! URL, so it opens offline and can be mailed as one file) and each figure as its own SVG.
+//! The unpatterned baseline is the study's baseline design with open_fraction = 1 at the same
+//! operating point, evaluated by the model.
 
-pub mod svg;
+pub mod html;
 pub mod rundir;
+pub mod svg;
+
+use std::path::Path;
+use std::time::Instant;
+
+use model::{Design, Drive, Evaluation, Options};
+
+use crate::error::{io_error, CliError};
+use crate::fsio::write_atomic;
+use crate::handoff::case;
+use rundir::RunDir;
+
+/// Designs shown in the current-voltage, profile and pattern figures (best in each objective).
+pub const BEST_FEW: usize = 3;
+
+/// One figure: file name, caption, SVG text.
+#[derive(Debug, Clone)]
+pub struct Figure {
+    /// File name in the report folder.
+    pub file: String,
+    /// Caption under the figure.
+    pub caption: String,
+    /// SVG document.
+    pub svg: String,
+}
+
+/// A chosen design for the detailed figures.
+#[derive(Debug, Clone)]
+pub struct Chosen {
+    /// Front id.
+    pub id: u64,
+    /// Why it was chosen.
+    pub why: String,
+    /// The design.
+    pub design: Design,
+    /// Its evaluation with profiles.
+    pub eval: Evaluation,
+}
+
+/// The whole report before it is written.
+#[derive(Debug, Clone)]
+pub struct Report {
+    /// Figures in page order, grouped by section title.
+    pub sections: Vec<(String, String, Vec<Figure>)>,
+    /// The HTML page.
+    pub html: String,
+}
+
+fn profiled(d: &Design, run: &RunDir, what: &str) -> Result<Evaluation, String> {
+    let opts = Options {
+        profiles: true,
+        ..Options::default()
+    };
+    model::evaluate(d, &run.study.constants, &opts).map_err(|e| format!("{what}: {e}"))
+}
+
+fn cell_voltage(d: &Design, e: &Evaluation) -> f64 {
+    match d.operation.drive {
+        Drive::Voltage {
+            cell_pair_voltage_v,
+        } => cell_pair_voltage_v,
+        Drive::Current { .. } => e.inputs.cell_pair_voltage_V,
+    }
+}
+
+/// The best design of the front in each objective (natural direction), without repeats.
+pub fn best_few(run: &RunDir) -> Vec<(u64, String)> {
+    let mut out: Vec<(u64, String)> = Vec::new();
+    for o in &run.study.objectives {
+        let Some(c) = run.front.col(o.column()) else {
+            continue;
+        };
+        let best = run
+            .front
+            .rows
+            .iter()
+            .filter(|r| r.values[c].is_finite())
+            .max_by(|a, b| {
+                let (x, y) = (a.values[c], b.values[c]);
+                if o.maximise() {
+                    x.total_cmp(&y)
+                } else {
+                    y.total_cmp(&x)
+                }
+                // on ties the lower id wins
+                .then(b.id.cmp(&a.id))
+            });
+        if let Some(r) = best {
+            match out.iter_mut().find(|(id, _)| *id == r.id) {
+                Some((_, why)) => why.push_str(&format!(", best {}", o.key())),
+                None => out.push((r.id, format!("best {}", o.key()))),
+            }
+        }
+        if out.len() == BEST_FEW {
+            break;
+        }
+    }
+    out
+}
+
+fn front_figures(run: &RunDir, baseline: Option<&Evaluation>) -> Result<Vec<Figure>, CliError> {
+    let objs = &run.study.objectives;
+    let mut figs = Vec::new();
+    let diag = "active_area_fraction";
+    for a in 0..objs.len() {
+        for b in (a + 1)..objs.len() {
+            let (oa, ob) = (objs[a], objs[b]);
+            let third = (0..objs.len()).find(|&k| k != a && k != b).map(|k| objs[k]);
+            let (ccol, clabel) = match third {
+                Some(o) => (
+                    o.column().to_string(),
+                    format!("{} ({})", o.key(), o.unit()),
+                ),
+                None => (diag.to_string(), "active-area fraction (-)".to_string()),
+            };
+            let (Some(ia), Some(ib)) = (run.front.col(oa.column()), run.front.col(ob.column()))
+            else {
+                return Err(CliError::input(
+                    run.dir.join("front.csv"),
+                    Some(1),
+                    oa.column(),
+                    "an objective column of the study is missing",
+                    "front.csv written by `stria run` for this study",
+                ));
+            };
+            let ic = run.front.col(&ccol);
+            let pts: Vec<(f64, f64, f64)> = run
+                .front
+                .rows
+                .iter()
+                .map(|r| {
+                    (
+                        r.values[ia],
+                        r.values[ib],
+                        ic.map(|c| r.values[c]).unwrap_or(0.0),
+                    )
+                })
+                .collect();
+            let mark = baseline.map(|e| (oa.value(e), ob.value(e), "unpatterned baseline"));
+            let svg = svg::scatter_coloured(
+                &format!("Front: {} against {}", ob.key(), oa.key()),
+                &format!("{} ({}, {})", oa.key(), oa.unit(), oa.direction()),
+                &format!("{} ({}, {})", ob.key(), ob.unit(), ob.direction()),
+                &clabel,
+                &pts,
+                mark,
+            )
+            .map_err(CliError::runtime)?;
+            figs.push(Figure {
+                file: format!("front_{}_vs_{}.svg", ob.key(), oa.key()),
+                caption: format!(
+                    "The {} non-dominated designs in {} and {}, coloured by {}; the cross marks \
+                     the study's baseline with an unpatterned membrane (open fraction 1) at the \
+                     same operating point.",
+                    pts.len(),
+                    oa.key(),
+                    ob.key(),
+                    clabel
+                ),
+                svg,
+            });
+        }
+    }
+    Ok(figs)
+}
+
+fn hypervolume_figure(run: &RunDir) -> Result<Option<Figure>, CliError> {
+    let pts: Vec<(f64, f64)> = run
+        .history
+        .iter()
+        .map(|h| (h.evaluations, h.hypervolume))
+        .filter(|p| p.0.is_finite() && p.1.is_finite())
+        .collect();
+    if pts.is_empty() {
+        return Ok(None);
+    }
+    let svg = svg::xy_chart(
+        "Hypervolume of the front against evaluations",
+        "evaluations",
+        "hypervolume (minimised objectives, fixed reference point)",
+        &[svg::Series {
+            name: "hypervolume".into(),
+            points: pts,
+            mark: svg::Mark::Line,
+            colour: 1,
+        }],
+    )
+    .map_err(CliError::runtime)?;
+    Ok(Some(Figure {
+        file: "hypervolume.svg".into(),
+        caption: "Hypervolume after each generation (history.csv): a flat tail means the search \
+                  has stopped improving the front."
+            .into(),
+        svg,
+    }))
+}
+
+fn design_figures(
+    run: &RunDir,
+    chosen: &[Chosen],
+    base: Option<(&Design, &Evaluation)>,
+) -> Result<Vec<Figure>, CliError> {
+    let mut figs = Vec::new();
+    // current-voltage curves at the channel inlet
+    let vmax = chosen
+        .iter()
+        .map(|c| cell_voltage(&c.design, &c.eval))
+        .chain(base.map(|(d, e)| cell_voltage(d, e)))
+        .fold(0.0, f64::max)
+        * 1.5;
+    let volts: Vec<f64> = (1..=48).map(|k| vmax * k as f64 / 48.0).collect();
+    let mut iv = Vec::new();
+    let mut add_iv = |name: String, d: &Design, colour: usize, mark: svg::Mark| {
+        let pts: Vec<(f64, f64)> = model::iv_curve(d, &run.study.constants, &volts)
+            .iter()
+            .map(|p| (p.voltage_v, p.current_density_a_m2))
+            .filter(|p| p.0.is_finite() && p.1.is_finite())
+            .collect();
+        iv.push(svg::Series {
+            name,
+            points: pts,
+            mark,
+            colour,
+        });
+    };
+    if let Some((d, _)) = base {
+        add_iv("unpatterned baseline".into(), d, 0, svg::Mark::Line);
+    }
+    for (k, c) in chosen.iter().enumerate() {
+        add_iv(
+            format!("design {} ({})", c.id, c.why),
+            &c.design,
+            k + 1,
+            svg::Mark::Line,
+        );
+    }
+    figs.push(Figure {
+        file: "iv_curves.svg".into(),
+        caption: "Cell-pair current density against cell-pair voltage at the channel inlet (feed \
+                  concentrations): the chosen designs and the unpatterned baseline."
+            .into(),
+        svg: svg::xy_chart(
+            "Current-voltage curves",
+            "cell-pair voltage (V)",
+            "current density (A/m^2)",
+            &iv,
+        )
+        .map_err(CliError::runtime)?,
+    });
+    // profiles along the channel
+    type Pick = fn(&model::Profiles) -> &Vec<f64>;
+    let profile_sets: [(&str, &str, &str, Pick); 3] = [
+        (
+            "profile_concentration.svg",
+            "Diluate concentration along the channel",
+            "diluate concentration (mol/m^3)",
+            |p| &p.diluate_mol_m3,
+        ),
+        (
+            "profile_current.svg",
+            "Local current density along the channel",
+            "current density (A/m^2)",
+            |p| &p.current_density_A_m2,
+        ),
+        (
+            "profile_active_area.svg",
+            "Active-area fraction along the channel",
+            "active-area fraction (-)",
+            |p| &p.active_area_fraction,
+        ),
+    ];
+    for (file, title, ylabel, pick) in profile_sets {
+        let mut series = Vec::new();
+        let mut add = |name: String, e: &Evaluation, colour: usize| {
+            if let Some(p) = &e.profiles {
+                series.push(svg::Series {
+                    name,
+                    points: p.x_m.iter().copied().zip(pick(p).iter().copied()).collect(),
+                    mark: svg::Mark::Line,
+                    colour,
+                });
+            }
+        };
+        if let Some((_, e)) = base {
+            add("unpatterned baseline".into(), e, 0);
+        }
+        for (k, c) in chosen.iter().enumerate() {
+            add(format!("design {}", c.id), &c.eval, k + 1);
+        }
+        figs.push(Figure {
+            file: file.into(),
+            caption: format!("{title}, from inlet (0) to outlet: the chosen designs and the unpatterned baseline."),
+            svg: svg::xy_chart(title, "distance from the inlet (m)", ylabel, &series).map_err(CliError::runtime)?,
+        });
+    }
+    // each pattern to scale
+    for c in chosen {
+        let m = &c.design.membranes;
+        let delta = c.eval.transfer.boundary_layer_thickness_mean_m;
+        let lv = c.eval.performance.vortex_wavelength_m;
+        let n = case::pitches_for_window(m.pitch_m, delta, lv).min(40);
+        let (conducting, _) = case::stripes(m.pitch_m, m.open_fraction, n);
+        let window = m.pitch_m * n as f64;
+        let height = (1.5 * delta.max(lv.unwrap_or(0.0) * 0.5))
+            .min(c.design.channel.gap_m)
+            .max(0.2 * window.min(c.design.channel.gap_m));
+        let title = format!(
+            "Design {}: pitch {} um, open fraction {}",
+            c.id,
+            svg::fmt_num(m.pitch_m * 1e6),
+            svg::fmt_num(m.open_fraction)
+        );
+        figs.push(Figure {
+            file: format!("pattern_{}.svg", c.id),
+            caption: format!(
+                "Design {} drawn to scale: {} pitches of the membrane (conducting stripes blue, \
+                 inert grey), the channel-mean diffusion-layer thickness (red) and the natural \
+                 vortex wavelength (green rolls, a pair per wavelength{}).",
+                c.id,
+                n,
+                if lv.is_none() {
+                    "; none: no electroconvection at this operating point"
+                } else {
+                    ""
+                }
+            ),
+            svg: svg::pattern(&svg::PatternFigure {
+                title: &title,
+                window_m: window,
+                height_m: height,
+                conducting: &conducting,
+                delta_m: delta,
+                wavelength_m: lv,
+            })
+            .map_err(CliError::runtime)?,
+        });
+    }
+    Ok(figs)
+}
+
+/// Build the report of a run (figures and page) without writing anything.
+pub fn build(run: &RunDir) -> Result<Report, CliError> {
+    let base_design = rundir::unpatterned(&run.study.baseline);
+    let base_eval = profiled(&base_design, run, "unpatterned baseline");
+    let mut notes = Vec::new();
+    if let Err(e) = &base_eval {
+        notes.push(format!(
+            "The unpatterned baseline could not be evaluated ({e}); it is not shown."
+        ));
+    }
+    let base_eval = base_eval.ok();
+    let mut chosen = Vec::new();
+    for (id, why) in best_few(run) {
+        let row = run.front.row(id).expect("best_few picks rows of the front");
+        let x = rundir::x_of(run, row)?;
+        let design = run.study.design_at(&x);
+        match profiled(&design, run, &format!("design {id}")) {
+            Ok(eval) => chosen.push(Chosen { id, why, design, eval }),
+            Err(e) => notes.push(format!("Design {id} could not be re-evaluated ({e}); it is left out of the detailed figures.")),
+        }
+    }
+    let mut sections = Vec::new();
+    if run.front.rows.is_empty() {
+        notes.push("The front is empty: no feasible design yet.".into());
+    } else {
+        sections.push((
+            "The front".to_string(),
+            "Each pair of objectives; colour shows the third objective (or the active-area fraction when there are two).".to_string(),
+            front_figures(run, base_eval.as_ref())?,
+        ));
+    }
+    if let Some(f) = hypervolume_figure(run)? {
+        sections.push(("Progress".into(), String::new(), vec![f]));
+    }
+    if !chosen.is_empty() {
+        let list = chosen
+            .iter()
+            .map(|c| format!("design {} ({})", c.id, c.why))
+            .collect::<Vec<_>>()
+            .join("; ");
+        sections.push((
+            "Chosen designs against the unpatterned baseline".into(),
+            format!("The best design in each objective: {list}. Black: the unpatterned baseline."),
+            design_figures(run, &chosen, base_eval.as_ref().map(|e| (&base_design, e)))?,
+        ));
+    }
+    let html = html::page(run, &sections, &chosen, base_eval.as_ref(), &notes);
+    Ok(Report { sections, html })
+}
+
+/// `stria report DIR`.
+pub fn run(dir: &Path) -> Result<(), CliError> {
+    let t0 = Instant::now();
+    let run = rundir::read(dir)?;
+    let report = build(&run)?;
+    let out = dir.join("report");
+    std::fs::create_dir_all(&out).map_err(|e| io_error("create", &out, e))?;
+    let mut n = 0;
+    for (_, _, figs) in &report.sections {
+        for f in figs {
+            let p = out.join(&f.file);
+            write_atomic(&p, f.svg.as_bytes()).map_err(|e| io_error("write", &p, e))?;
+            n += 1;
+        }
+    }
+    let page = out.join("report.html");
+    write_atomic(&page, report.html.as_bytes()).map_err(|e| io_error("write", &page, e))?;
+    println!(
+        "Wrote {} ({} figures inlined, also as SVG files in {}) in {:.2} s",
+        page.display(),
+        n,
+        out.display(),
+        t0.elapsed().as_secs_f64()
+    );
+    println!("Open it in any browser; it needs no network. Next: `stria handoff {} --pick ID` for the designs to simulate.", dir.display());
+    Ok(())
+}

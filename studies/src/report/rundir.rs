@@ -79,16 +79,36 @@ fn missing(dir: &Path, what: &str) -> CliError {
     )
 }
 
-/// Read a CSV table with a header; numbers parsed where they can be.
-fn read_table(path: &Path) -> Result<(Vec<String>, Vec<(usize, Vec<String>)>), CliError> {
+/// A CSV table: column names, and rows as (line, cells).
+type Table = (Vec<String>, Vec<(usize, Vec<String>)>);
+
+/// Read a CSV table with a header.
+fn read_table(path: &Path) -> Result<Table, CliError> {
     let text = std::fs::read_to_string(path).map_err(|e| {
-        CliError::input(path, None, "(file)", format!("cannot be read: {e}"), "a readable CSV file")
+        CliError::input(
+            path,
+            None,
+            "(file)",
+            format!("cannot be read: {e}"),
+            "a readable CSV file",
+        )
     })?;
     let mut rdr = csv::ReaderBuilder::new().from_reader(text.as_bytes());
     let bad = |line: Option<usize>, e: csv::Error| {
-        CliError::input(path, line, "(row)", format!("not readable as CSV: {e}"), "the CSV written by `stria run`")
+        CliError::input(
+            path,
+            line,
+            "(row)",
+            format!("not readable as CSV: {e}"),
+            "the CSV written by `stria run`",
+        )
     };
-    let columns: Vec<String> = rdr.headers().map_err(|e| bad(Some(1), e))?.iter().map(String::from).collect();
+    let columns: Vec<String> = rdr
+        .headers()
+        .map_err(|e| bad(Some(1), e))?
+        .iter()
+        .map(String::from)
+        .collect();
     let mut rows = Vec::new();
     for rec in rdr.records() {
         let rec = rec.map_err(|e| bad(None, e))?;
@@ -102,15 +122,35 @@ fn read_table(path: &Path) -> Result<(Vec<String>, Vec<(usize, Vec<String>)>), C
 pub fn read_front(path: &Path) -> Result<Front, CliError> {
     let (columns, rows) = read_table(path)?;
     if columns.first().map(String::as_str) != Some("id") {
-        return Err(CliError::input(path, Some(1), "id", "the first column must be `id`", "front.csv as written by `stria run`"));
+        return Err(CliError::input(
+            path,
+            Some(1),
+            "id",
+            "the first column must be `id`",
+            "front.csv as written by `stria run`",
+        ));
     }
     let mut out = Vec::new();
     for (line, raw) in rows {
         let id = raw[0].parse::<u64>().map_err(|_| {
-            CliError::input(path, Some(line), "id", format!("`{}` is not a design id", raw[0]), "a whole number")
+            CliError::input(
+                path,
+                Some(line),
+                "id",
+                format!("`{}` is not a design id", raw[0]),
+                "a whole number",
+            )
         })?;
-        let values = raw.iter().map(|s| s.parse::<f64>().unwrap_or(f64::NAN)).collect();
-        out.push(FrontRow { id, line, raw, values });
+        let values = raw
+            .iter()
+            .map(|s| s.parse::<f64>().unwrap_or(f64::NAN))
+            .collect();
+        out.push(FrontRow {
+            id,
+            line,
+            raw,
+            values,
+        });
     }
     out.sort_by_key(|r| r.id);
     Ok(Front { columns, rows: out })
@@ -124,10 +164,22 @@ pub fn read_history(path: &Path) -> Result<Vec<HistoryRow>, CliError> {
     let (columns, rows) = read_table(path)?;
     let idx = |name: &str| -> Result<usize, CliError> {
         columns.iter().position(|c| c == name).ok_or_else(|| {
-            CliError::input(path, Some(1), name, format!("column `{name}` is missing"), "history.csv as written by `stria run`")
+            CliError::input(
+                path,
+                Some(1),
+                name,
+                format!("column `{name}` is missing"),
+                "history.csv as written by `stria run`",
+            )
         })
     };
-    let (g, e, f, h, t) = (idx("generation")?, idx("evaluations")?, idx("feasible_share")?, idx("hypervolume")?, idx("elapsed_s")?);
+    let (g, e, f, h, t) = (
+        idx("generation")?,
+        idx("evaluations")?,
+        idx("feasible_share")?,
+        idx("hypervolume")?,
+        idx("elapsed_s")?,
+    );
     let num = |s: &str| s.parse::<f64>().unwrap_or(f64::NAN);
     Ok(rows
         .iter()
@@ -144,7 +196,13 @@ pub fn read_history(path: &Path) -> Result<Vec<HistoryRow>, CliError> {
 /// Read a whole run directory.
 pub fn read(dir: &Path) -> Result<RunDir, CliError> {
     if !dir.is_dir() {
-        return Err(CliError::input(dir, None, "(directory)", "is not a directory", "a run directory written by `stria run`"));
+        return Err(CliError::input(
+            dir,
+            None,
+            "(directory)",
+            "is not a directory",
+            "a run directory written by `stria run`",
+        ));
     }
     let study_path = dir.join("study.toml");
     if !study_path.exists() {
@@ -161,7 +219,13 @@ pub fn read(dir: &Path) -> Result<RunDir, CliError> {
         .ok()
         .and_then(|s| serde_json::from_str(&s).ok())
         .unwrap_or(serde_json::Value::Null);
-    Ok(RunDir { dir: dir.to_path_buf(), study, front, history, summary })
+    Ok(RunDir {
+        dir: dir.to_path_buf(),
+        study,
+        front,
+        history,
+        summary,
+    })
 }
 
 /// The design variables of a front row, in the study's variable order.
@@ -173,13 +237,25 @@ pub fn x_of(run: &RunDir, row: &FrontRow) -> Result<Vec<f64>, CliError> {
         .map(|v| {
             let col = v.kind.column();
             let i = run.front.col(col).ok_or_else(|| {
-                CliError::input(&path, Some(1), col, format!("column `{col}` of the study's variable is missing"), "front.csv written for this study")
+                CliError::input(
+                    &path,
+                    Some(1),
+                    col,
+                    format!("column `{col}` of the study's variable is missing"),
+                    "front.csv written for this study",
+                )
             })?;
             let x = row.values[i];
             if x.is_finite() {
                 Ok(x)
             } else {
-                Err(CliError::input(&path, Some(row.line), col, format!("`{}` is not a number", row.raw[i]), "a number"))
+                Err(CliError::input(
+                    &path,
+                    Some(row.line),
+                    col,
+                    format!("`{}` is not a number", row.raw[i]),
+                    "a number",
+                ))
             }
         })
         .collect()

@@ -47,7 +47,11 @@ pub fn palette(i: usize) -> RGBColor {
 
 /// Colour for a value scaled to 0..1 (blue to red through green).
 pub fn ramp(t: f64) -> HSLColor {
-    let t = if t.is_finite() { t.clamp(0.0, 1.0) } else { 0.5 };
+    let t = if t.is_finite() {
+        t.clamp(0.0, 1.0)
+    } else {
+        0.5
+    };
     HSLColor(0.66 * (1.0 - t), 0.75, 0.45)
 }
 
@@ -120,11 +124,7 @@ pub fn xy_chart(
                 }
                 Mark::Points => {
                     chart
-                        .draw_series(
-                            s.points
-                                .iter()
-                                .map(|&p| Circle::new(p, 3, c.filled())),
-                        )
+                        .draw_series(s.points.iter().map(|&p| Circle::new(p, 3, c.filled())))
                         .map_err(err)?
                         .label(s.name.as_str())
                         .legend(move |(x, y)| Circle::new((x + 9, y), 3, c.filled()));
@@ -184,7 +184,11 @@ pub fn scatter_coloured(
             .map_err(err)?;
         if let Some((x, y, name)) = marked {
             chart
-                .draw_series(std::iter::once(Cross::new((x, y), 7, BLACK.stroke_width(3))))
+                .draw_series(std::iter::once(Cross::new(
+                    (x, y),
+                    7,
+                    BLACK.stroke_width(3),
+                )))
                 .map_err(err)?
                 .label(name)
                 .legend(|(x, y)| Cross::new((x + 8, y), 5, BLACK.stroke_width(2)));
@@ -295,21 +299,42 @@ pub fn pattern(fig: &PatternFigure) -> Result<String, String> {
             )))
             .map_err(err)?
             .label("inert stripe")
-            .legend(|(x, y)| Rectangle::new([(x, y - 4), (x + 14, y + 4)], RGBColor(190, 190, 190).filled()));
+            .legend(|(x, y)| {
+                Rectangle::new(
+                    [(x, y - 4), (x + 14, y + 4)],
+                    RGBColor(190, 190, 190).filled(),
+                )
+            });
         chart
             .draw_series(fig.conducting.iter().map(|s| {
-                Rectangle::new([(s[0] * um, base), (s[1] * um, 0.0)], RGBColor(31, 80, 160).filled())
+                Rectangle::new(
+                    [(s[0] * um, base), (s[1] * um, 0.0)],
+                    RGBColor(31, 80, 160).filled(),
+                )
             }))
             .map_err(err)?
             .label("conducting stripe")
-            .legend(|(x, y)| Rectangle::new([(x, y - 4), (x + 14, y + 4)], RGBColor(31, 80, 160).filled()));
+            .legend(|(x, y)| {
+                Rectangle::new(
+                    [(x, y - 4), (x + 14, y + 4)],
+                    RGBColor(31, 80, 160).filled(),
+                )
+            });
         // diffusion layer edge
         let d = fig.delta_m * um;
         chart
-            .draw_series(LineSeries::new(vec![(0.0, d), (w, d)], RGBColor(214, 39, 40).stroke_width(2)))
+            .draw_series(LineSeries::new(
+                vec![(0.0, d), (w, d)],
+                RGBColor(214, 39, 40).stroke_width(2),
+            ))
             .map_err(err)?
             .label(format!("diffusion layer, delta = {} um", fmt_num(d)))
-            .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 14, y)], RGBColor(214, 39, 40).stroke_width(2)));
+            .legend(|(x, y)| {
+                PathElement::new(
+                    vec![(x, y), (x + 14, y)],
+                    RGBColor(214, 39, 40).stroke_width(2),
+                )
+            });
         // vortex pairs: one wavelength holds two counter-rotating rolls of diameter lambda/2
         if let Some(lv) = fig.wavelength_m {
             let l = lv * um;
@@ -330,11 +355,16 @@ pub fn pattern(fig: &PatternFigure) -> Result<String, String> {
                 rolls.push(pts);
             }
             chart
-                .draw_series(rolls.into_iter().map(|pts| {
-                    PathElement::new(pts, RGBColor(44, 160, 44).stroke_width(1))
-                }))
+                .draw_series(
+                    rolls
+                        .into_iter()
+                        .map(|pts| PathElement::new(pts, RGBColor(44, 160, 44).stroke_width(1))),
+                )
                 .map_err(err)?
-                .label(format!("vortex wavelength = {} um (pair of rolls)", fmt_num(l)))
+                .label(format!(
+                    "vortex wavelength = {} um (pair of rolls)",
+                    fmt_num(l)
+                ))
                 .legend(|(x, y)| Circle::new((x + 7, y), 5, RGBColor(44, 160, 44).stroke_width(1)));
         }
         chart
@@ -363,7 +393,15 @@ mod tests {
         };
         let svg = xy_chart("t <1>", "x", "y", &[s]).unwrap();
         roxmltree::Document::parse(&svg).unwrap();
-        let svg = scatter_coloured("t", "x", "y", "c", &[(0.0, 1.0, 2.0), (1.0, 0.0, 3.0)], Some((0.5, 0.5, "base"))).unwrap();
+        let svg = scatter_coloured(
+            "t",
+            "x",
+            "y",
+            "c",
+            &[(0.0, 1.0, 2.0), (1.0, 0.0, 3.0)],
+            Some((0.5, 0.5, "base")),
+        )
+        .unwrap();
         roxmltree::Document::parse(&svg).unwrap();
         let svg = pattern(&PatternFigure {
             title: "p",
