@@ -233,3 +233,56 @@ impl Default for Options {
         }
     }
 }
+
+impl Design {
+    /// The demo design of stria: Marlow Flats, Well 3 brackish groundwater (invented, for the
+    /// demo only). NaCl at 16 C, 41 mol/m^3 (2.4 g/L) on both streams; open slits of 0.5 mm,
+    /// 0.45 m long, 0.20 m wide; CEM tm 0.97 and AEM tm 0.96, 3 Ohm cm^2 each; pattern on the
+    /// CEM, pitch 120 um, open fraction 0.5; 4 cm/s both streams; 2.0 V per cell pair,
+    /// co-current, fixed length; economics of the demo (invented).
+    pub fn demo() -> Design {
+        Design {
+            water: Water {
+                salt: Salt::NaCl,
+                temperature_k: 289.15,
+                feed_concentration_mol_m3: 41.0,
+                concentrate_feed_concentration_mol_m3: 41.0,
+            },
+            channel: Channel {
+                gap_m: 0.5e-3,
+                concentrate_gap_m: 0.5e-3,
+                length_m: 0.45,
+                width_m: 0.20,
+                spacer: Spacer::None,
+            },
+            membranes: Membranes {
+                cem_transport_number: 0.97,
+                aem_transport_number: 0.96,
+                cem_area_resistance_ohm_m2: 3e-4,
+                aem_area_resistance_ohm_m2: 3e-4,
+                pitch_m: 120e-6,
+                open_fraction: 0.5,
+                pattern_side: PatternSide::Cem,
+            },
+            operation: Operation {
+                velocity_m_s: 0.04,
+                concentrate_velocity_m_s: 0.04,
+                drive: Drive::Voltage {
+                    cell_pair_voltage_v: 2.0,
+                },
+                flow: FlowArrangement::CoCurrent,
+                length_mode: LengthMode::Fixed,
+            },
+            economics: Economics {
+                electricity_price_per_kwh: 0.14,
+                pump_efficiency: 0.65,
+                membrane_price_per_m2: 90.0,
+                pattern_surcharge_per_m2: 45.0,
+                membrane_life_years: 7.0,
+                discount_rate: 0.06,
+                operating_hours_per_year: 8000.0,
+                plant_capacity_m3_day: 1500.0,
+            },
+        }
+    }
+}

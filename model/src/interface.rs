@@ -126,6 +126,90 @@ pub struct Layer {
     i_onset: f64,
 }
 
+/// The v-independent part of a surface's law: the pattern and the ROM constants, computed
+/// once per design (the layer law itself changes with delta and i_lim along the channel).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Surface {
+    /// Stripe pitch, m.
+    pub pitch_m: f64,
+    /// Open fraction f (1 = unpatterned), -.
+    pub open_fraction: f64,
+    /// alpha_0' = min(alpha_0, f).
+    a0: f64,
+    /// (alpha_max' - alpha_0') P(f).
+    amp: f64,
+    /// 1 - exp(-v_c / 2).
+    onset_factor: f64,
+    k: RomConstants,
+}
+
+impl Surface {
+    /// The surface of stripe `pitch_m` and `open_fraction` (1 = unpatterned).
+    pub fn new(pitch_m: f64, open_fraction: f64, k: &RomConstants) -> Self {
+        let f = open_fraction.min(1.0);
+        let a0 = k.alpha_0.min(f);
+        let amax = k.alpha_max.min(f);
+        Surface {
+            pitch_m,
+            open_fraction: f,
+            a0,
+            amp: (amax - a0) * pinning_efficiency(f, k),
+            onset_factor: 1.0 - (-0.5 * k.onset_voltage).exp(),
+            k: *k,
+        }
+    }
+
+    /// The layer law on this surface for a layer of thickness `delta_m` whose homogeneous
+    /// Peers limit is `i_lim` (A/m^2).
+    #[inline]
+    pub fn layer(&self, i_lim: f64, delta_m: f64) -> Layer {
+        let k = &self.k;
+        let f = self.open_fraction;
+        let phi = if f >= 1.0 {
+            1.0
+        } else {
+            let r = self.pitch_m / (k.funnel_scale * delta_m);
+            let x = if k.funnel_exponent == 1.0 {
+                r
+            } else {
+                r.powf(k.funnel_exponent)
+            };
+            f + (1.0 - f) / (1.0 + x)
+        };
+        let lambda0 = k.wavelength_prefactor * delta_m;
+        let (q, sigma, v_c) = (k.wavelength_exponent, k.lockin_width, k.onset_voltage);
+        let (z0, j_pref, b_c) = if self.amp != 0.0 {
+            let z0 = (self.pitch_m / lambda0).ln();
+            let j_pref = v_c * sigma / q
+                * (0.5 * std::f64::consts::PI).sqrt()
+                * (z0 / q + sigma * sigma / (2.0 * q * q)).exp();
+            let b_c = -(z0 + sigma * sigma / q) / (sigma * std::f64::consts::SQRT_2);
+            (z0, j_pref, b_c)
+        } else {
+            (0.0, 0.0, 0.0)
+        };
+        let i_het = i_lim * phi;
+        Layer {
+            i_lim,
+            phi,
+            i_het,
+            delta_m,
+            v_c,
+            gain: i_lim * k.overlimiting_conductance / k.alpha_0,
+            n: k.overlimiting_exponent,
+            a0: self.a0,
+            amp: self.amp,
+            z0,
+            q,
+            sigma,
+            j_pref,
+            b_c,
+            lambda0,
+            i_onset: i_het * self.onset_factor,
+        }
+    }
+}
+
 impl Layer {
     /// Build the law of a layer of thickness `delta_m` whose homogeneous Peers limit is
     /// `i_lim`, on a surface of stripe `pitch_m` and `open_fraction` (1 = unpatterned).
@@ -136,41 +220,7 @@ impl Layer {
         open_fraction: f64,
         k: &RomConstants,
     ) -> Self {
-        let f = open_fraction.min(1.0);
-        let phi = funnelling(pitch_m, delta_m, f, k);
-        let a0 = k.alpha_0.min(f);
-        let amax = k.alpha_max.min(f);
-        let amp = (amax - a0) * pinning_efficiency(f, k);
-        let lambda0 = k.wavelength_prefactor * delta_m;
-        let z0 = (pitch_m / lambda0).ln();
-        let (q, sigma, v_c) = (k.wavelength_exponent, k.lockin_width, k.onset_voltage);
-        let j_pref = if amp != 0.0 {
-            v_c * sigma / q
-                * (0.5 * std::f64::consts::PI).sqrt()
-                * (z0 / q + sigma * sigma / (2.0 * q * q)).exp()
-        } else {
-            0.0
-        };
-        let b_c = -(z0 + sigma * sigma / q) / (sigma * std::f64::consts::SQRT_2);
-        let i_het = i_lim * phi;
-        Layer {
-            i_lim,
-            phi,
-            i_het,
-            delta_m,
-            v_c,
-            gain: i_lim * k.overlimiting_conductance / k.alpha_0,
-            n: k.overlimiting_exponent,
-            a0,
-            amp,
-            z0,
-            q,
-            sigma,
-            j_pref,
-            b_c,
-            lambda0,
-            i_onset: i_het * (1.0 - (-0.5 * v_c).exp()),
-        }
+        Surface::new(pitch_m, open_fraction, k).layer(i_lim, delta_m)
     }
 
     /// Onset voltage v_c, thermal units.

@@ -1,21 +1,35 @@
 //! stria's reduced-order physics model of one electrodialysis cell pair with a
 //! patterned (striped) ion-exchange membrane. Pure: no I/O, no printing.
 //!
-//! Entry point: [`evaluate`].
+//! Entry points: [`evaluate`] (one design along the channel), [`iv_curve`] (current-voltage
+//! characteristic of the cell pair at the inlet), [`interface::solve`] (one membrane
+//! interface, what a CFD case simulates).
+//!
+//! Layout, one idea per module: [`properties`] (electrolyte and water), [`hydraulics`],
+//! [`transfer`] (Sherwood, delta, Peers), [`interface`] (the ROM current-voltage law of one
+//! layer), [`cell`] (the voltage balance of a cell pair at one point), [`channel`] (along the
+//! channel), [`energy`], [`validity`] (input errors and warnings), [`constants`] (CODATA and
+//! ROM constants with provenance), [`numerics`] (root finders, quadrature).
 #![deny(missing_docs)]
 #![allow(non_snake_case)] // unit suffixes such as `_Pa`, `_V` follow the JSON schema
 
+pub mod cell;
+pub mod channel;
 pub mod constants;
 pub mod design;
+pub mod energy;
+mod evaluate;
 pub mod hydraulics;
 pub mod interface;
 pub mod numerics;
 pub mod output;
 pub mod properties;
 pub mod transfer;
+pub mod validity;
 
 pub use constants::RomConstants;
 pub use design::*;
+pub use evaluate::{evaluate, iv_curve, IvPoint};
 pub use output::*;
 
 /// Why an evaluation could not produce a result.
@@ -44,16 +58,4 @@ pub enum ModelError {
         /// Outlet concentration at the maximum length, mol/m^3.
         outlet_mol_m3: f64,
     },
-}
-
-/// Evaluate one design: along-channel integration of the cell pair, energy, cost, warnings.
-///
-/// Placeholder signature of the contract; the model work replaces the body.
-pub fn evaluate(
-    design: &Design,
-    constants: &RomConstants,
-    options: &Options,
-) -> Result<Evaluation, ModelError> {
-    let _ = (design, constants, options);
-    Err(ModelError::Numerical("model not yet implemented".into()))
 }

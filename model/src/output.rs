@@ -79,6 +79,9 @@ pub struct TransferOut {
     pub limiting_current_density_feed_A_m2: f64,
     /// "CEM" or "AEM".
     pub limiting_membrane: String,
+    /// Limit of the limiting membrane with the pattern's funnelling (i_lim Phi) at the feed
+    /// concentration and mean thickness, A/m^2.
+    pub heterogeneous_limiting_current_density_feed_A_m2: f64,
 }
 
 /// Performance.
@@ -112,6 +115,12 @@ pub struct PerformanceOut {
     pub active_area_fraction: f64,
     /// Channel-mean natural vortex wavelength, m; None without electroconvection.
     pub vortex_wavelength_m: Option<f64>,
+    /// pitch / vortex_wavelength_m; None without electroconvection.
+    pub pitch_over_wavelength: Option<f64>,
+    /// Largest CEM diffusion-layer voltage along the channel, thermal units.
+    pub max_cem_layer_voltage_thermal: f64,
+    /// Largest AEM diffusion-layer voltage along the channel, thermal units.
+    pub max_aem_layer_voltage_thermal: f64,
 }
 
 /// Economics (beyond the JSON schema's required fields).
@@ -161,6 +170,17 @@ pub struct Profiles {
     pub cem_layer_voltage_thermal: Vec<f64>,
 }
 
+/// How the along-channel integration went.
+#[derive(Debug, Clone, PartialEq, Default, Serialize, Deserialize)]
+pub struct NumericsOut {
+    /// Accepted integration steps (of the final integration).
+    pub integration_steps: u32,
+    /// Point solves (right-hand-side evaluations) over all integrations of this evaluation.
+    pub point_solves: u64,
+    /// Full channel integrations (more than one for current drive or counter-current flow).
+    pub channel_integrations: u32,
+}
+
 /// The full result of one evaluation.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct Evaluation {
@@ -178,6 +198,9 @@ pub struct Evaluation {
     pub economics: EconomicsOut,
     /// Validity warnings.
     pub warnings: Vec<Warning>,
+    /// Integration statistics.
+    #[serde(default)]
+    pub numerics: NumericsOut,
     /// Profiles along x, when requested.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub profiles: Option<Profiles>,

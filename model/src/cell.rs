@@ -1,0 +1,297 @@
+//! The voltage balance of one cell pair at one point along the channel.
+//!
+//! U_cell = E_mem + i R_ohm + V_T (v_CEM + v_AEM) + 2 V_T [ln(1 + i/i_lim,c,CEM) + ln(1 + i/i_lim,c,AEM)]
+//!
+//! - E_mem = [(2 tm_CEM - 1) + (2 tm_AEM - 1)] V_T ln(c_c / c_d): membrane potentials of the
+//!   bulk concentration ratio (ideal solutions; the polarisation of the layers is carried by
+//!   the layer voltages, so E_mem uses bulk, not wall, concentrations).
+//! - R_ohm = R_CEM/f_CEM + R_AEM/f_AEM (a patterned membrane conducts through its open share
+//!   only; f = 1 when unpatterned) + the strip-constriction (spreading) resistance
+//!   pitch ln(1 / sin(pi f / 2)) / (pi kappa_d) of each patterned surface (periodic strips on
+//!   an insulating plane, the classic constriction result, e.g. Newman, J. Electrochem. Soc.
+//!   113 (1966) 501 for the method; from memory) + the diluate and concentrate cores
+//!   shadow (h - 2 delta) / kappa. The two diffusion layers of each channel are left out of
+//!   the ohmic term because the layer voltages 2 V_T ln(c_b/c_s) already hold their ohmic
+//!   drop (no double counting).
+//! - v_CEM, v_AEM: diluate-side layer voltages in thermal units, each with its own law
+//!   ([`crate::interface::Layer`], classic plus overlimiting branch).
+//! - The concentrate-side enrichment layers: 2 V_T ln(1 + i / i_lim,c) each (ideal membrane).
+//!
+//! Solve strategy: the unknown is the layer voltage of the membrane with the lower
+//! heterogeneous limit (the CEM for NaCl); the current follows in closed form, and the other
+//! layer is inverted in closed form while it is below its own onset. The residual is
+//! strictly increasing in the unknown, bracketed by [0, (U - E_mem) / V_T], and solved by
+//! Newton steps kept inside the bracket ([`crate::numerics::newton_bracketed`]).
+
+use crate::constants::{RomConstants, FARADAY};
+use crate::design::{Design, PatternSide};
+use crate::hydraulics::{channel_flow, ChannelFlow};
+use crate::interface::{water_splitting_share, Layer, Surface};
+use crate::numerics::newton_bracketed;
+use crate::properties::{properties, ConductivityModel, Properties};
+use crate::transfer::SherwoodModel;
+
+/// Strip-constriction coefficient pitch ln(1 / sin(pi f / 2)) / pi, m; divided by the
+/// conductivity it is the area resistance added by funnelling the current into stripes of
+/// open fraction f (0 for f = 1).
+pub fn spreading_length(pitch_m: f64, open_fraction: f64) -> f64 {
+    if open_fraction >= 1.0 {
+        return 0.0;
+    }
+    pitch_m * (1.0 / (0.5 * std::f64::consts::PI * open_fraction).sin()).ln() / std::f64::consts::PI
+}
+
+/// Everything about one cell pair that is constant along the channel.
+#[derive(Debug, Clone, Copy)]
+pub struct Cell {
+    /// Thermal voltage, V.
+    pub vt: f64,
+    /// Properties at the feed.
+    pub props: Properties,
+    /// Conductivity law.
+    pub cond: ConductivityModel,
+    /// Membrane transport numbers.
+    pub tm_cem: f64,
+    /// AEM counter-ion transport number.
+    pub tm_aem: f64,
+    /// CEM area resistance including 1/f, Ohm m^2.
+    pub r_cem: f64,
+    /// AEM area resistance including 1/f, Ohm m^2.
+    pub r_aem: f64,
+    /// Sum of the spreading lengths of the patterned surfaces, m.
+    pub spreading_m: f64,
+    /// Diluate gap, m.
+    pub gap_d: f64,
+    /// Concentrate gap, m.
+    pub gap_c: f64,
+    /// Diluate flow.
+    pub flow_d: ChannelFlow,
+    /// Concentrate flow.
+    pub flow_c: ChannelFlow,
+    /// Diluate Sherwood model.
+    pub sh_d: SherwoodModel,
+    /// Concentrate Sherwood model.
+    pub sh_c: SherwoodModel,
+    /// CEM diluate surface.
+    pub cem: Surface,
+    /// AEM diluate surface.
+    pub aem: Surface,
+    /// Which membrane carries the pattern.
+    pub pattern: PatternSide,
+    /// F D / (tm_CEM - t+), A m^2 / mol per (1/m): i_lim = this c / delta.
+    pub peers_cem: f64,
+    /// F D / (tm_AEM - t-).
+    pub peers_aem: f64,
+    /// tm_CEM + tm_AEM - 1.
+    pub xi0: f64,
+    /// ROM constants.
+    pub k: RomConstants,
+}
+
+/// Warm-start values of the point solve (the previous point's layer voltages).
+#[derive(Debug, Clone, Copy, Default, PartialEq)]
+pub struct Guess {
+    /// Voltage of the unknown (primary) layer, thermal units.
+    pub primary: f64,
+    /// Voltage of the other layer, thermal units.
+    pub secondary: f64,
+}
+
+/// The solution at one point.
+#[derive(Debug, Clone, Copy, Default, PartialEq)]
+pub struct PointSolution {
+    /// Current density, A/m^2.
+    pub current_density: f64,
+    /// CEM diluate-side layer voltage, thermal units.
+    pub v_cem: f64,
+    /// AEM diluate-side layer voltage, thermal units.
+    pub v_aem: f64,
+    /// Current efficiency xi = (tm_CEM + tm_AEM - 1)(1 - (ws_CEM + ws_AEM)/2), -.
+    pub xi: f64,
+    /// Water-splitting share at the CEM, -.
+    pub ws_cem: f64,
+    /// Water-splitting share at the AEM, -.
+    pub ws_aem: f64,
+    /// Active-area fraction of the patterned membrane, -.
+    pub alpha: f64,
+    /// Vortex wavelength at the patterned membrane (0 = no electroconvection), m.
+    pub wavelength: f64,
+    /// Heterogeneous limit of the limiting membrane, A/m^2.
+    pub limiting: f64,
+    /// True when the CEM has the lower heterogeneous limit.
+    pub cem_limits: bool,
+}
+
+/// The local state that does not depend on the current (one per point).
+#[derive(Debug, Clone, Copy)]
+pub struct Point {
+    /// CEM diluate layer law.
+    pub cem: Layer,
+    /// AEM diluate layer law.
+    pub aem: Layer,
+    /// Membrane potentials, V.
+    pub e_mem: f64,
+    /// Ohmic area resistance, Ohm m^2.
+    pub r_ohm: f64,
+    /// 1 / i_lim on the concentrate side of the CEM, m^2/A.
+    pub inv_cc: f64,
+    /// 1 / i_lim on the concentrate side of the AEM, m^2/A.
+    pub inv_ca: f64,
+}
+
+impl Cell {
+    /// Build the cell of a design (inputs assumed validated).
+    pub fn new(design: &Design, k: &RomConstants) -> Self {
+        let w = &design.water;
+        let ch = &design.channel;
+        let m = &design.membranes;
+        let op = &design.operation;
+        let props = properties(w.salt, w.temperature_k, w.feed_concentration_mol_m3);
+        let props_c = properties(
+            w.salt,
+            w.temperature_k,
+            w.concentrate_feed_concentration_mol_m3,
+        );
+        let flow = |gap, u, p: &Properties| {
+            channel_flow(
+                ch.spacer,
+                gap,
+                ch.length_m,
+                u,
+                p.density_kg_m3,
+                p.dynamic_viscosity_pa_s,
+                p.salt_diffusivity_m2_s,
+            )
+        };
+        let flow_d = flow(ch.gap_m, op.velocity_m_s, &props);
+        let flow_c = flow(ch.concentrate_gap_m, op.concentrate_velocity_m_s, &props_c);
+        let (f_cem, f_aem) = match m.pattern_side {
+            PatternSide::Cem => (m.open_fraction, 1.0),
+            PatternSide::Aem => (1.0, m.open_fraction),
+            PatternSide::Both => (m.open_fraction, m.open_fraction),
+        };
+        let d = props.salt_diffusivity_m2_s;
+        let tp = props.cation_transport_number;
+        Cell {
+            vt: props.thermal_voltage_v,
+            props,
+            cond: ConductivityModel::new(w.salt, w.temperature_k),
+            tm_cem: m.cem_transport_number,
+            tm_aem: m.aem_transport_number,
+            r_cem: m.cem_area_resistance_ohm_m2 / f_cem,
+            r_aem: m.aem_area_resistance_ohm_m2 / f_aem,
+            spreading_m: spreading_length(m.pitch_m, f_cem) + spreading_length(m.pitch_m, f_aem),
+            gap_d: ch.gap_m,
+            gap_c: ch.concentrate_gap_m,
+            flow_d,
+            flow_c,
+            sh_d: SherwoodModel::new(ch.spacer, &flow_d),
+            sh_c: SherwoodModel::new(ch.spacer, &flow_c),
+            cem: Surface::new(m.pitch_m, f_cem, k),
+            aem: Surface::new(m.pitch_m, f_aem, k),
+            pattern: m.pattern_side,
+            peers_cem: FARADAY * d / (m.cem_transport_number - tp),
+            peers_aem: FARADAY * d / (m.aem_transport_number - (1.0 - tp)),
+            xi0: m.cem_transport_number + m.aem_transport_number - 1.0,
+            k: *k,
+        }
+    }
+
+    /// The local laws at diluate layer thickness `delta_d`, concentrate layer thickness
+    /// `delta_c` and bulk concentrations `c_d`, `c_c` (mol/m^3).
+    #[inline]
+    pub fn point(&self, delta_d: f64, delta_c: f64, c_d: f64, c_c: f64) -> Point {
+        let kappa_d = self.cond.conductivity(c_d);
+        let kappa_c = self.cond.conductivity(c_c);
+        let core_d = (self.gap_d - 2.0 * delta_d).max(0.0) * self.flow_d.shadow_factor;
+        let core_c = (self.gap_c - 2.0 * delta_c).max(0.0) * self.flow_c.shadow_factor;
+        let r_ohm =
+            self.r_cem + self.r_aem + (self.spreading_m + core_d) / kappa_d + core_c / kappa_c;
+        let e_mem = 2.0 * self.xi0 * self.vt * (c_c / c_d).ln();
+        Point {
+            cem: self.cem.layer(self.peers_cem * c_d / delta_d, delta_d),
+            aem: self.aem.layer(self.peers_aem * c_d / delta_d, delta_d),
+            e_mem,
+            r_ohm,
+            inv_cc: delta_c / (self.peers_cem * c_c),
+            inv_ca: delta_c / (self.peers_aem * c_c),
+        }
+    }
+
+    /// Solve the voltage balance at one point for the cell-pair voltage `u` (V).
+    ///
+    /// Returns zero current when `u` does not exceed the membrane potentials (no
+    /// desalination; the model does not run the cell backwards).
+    pub fn solve(&self, p: &Point, u: f64, guess: &mut Guess) -> PointSolution {
+        let cem_limits = p.cem.i_het <= p.aem.i_het;
+        let (prim, sec) = if cem_limits {
+            (&p.cem, &p.aem)
+        } else {
+            (&p.aem, &p.cem)
+        };
+        let drive = (u - p.e_mem) / self.vt;
+        let (v_p, v_s, i) = if drive <= 0.0 {
+            (0.0, 0.0, 0.0)
+        } else {
+            let inv_r_vt = p.r_ohm / self.vt;
+            let mut v_sec = guess.secondary;
+            let residual = |v: f64, v_sec: &mut f64| {
+                let (i, di) = prim.current(v);
+                let (vs, dis) = sec.voltage(i, *v_sec);
+                *v_sec = vs;
+                let a = 1.0 + i * p.inv_cc;
+                let b = 1.0 + i * p.inv_ca;
+                let f = p.e_mem / self.vt - u / self.vt
+                    + i * inv_r_vt
+                    + v
+                    + vs
+                    + 2.0 * (a.ln() + b.ln());
+                let df = 1.0 + di * (inv_r_vt + 1.0 / dis + 2.0 * (p.inv_cc / a + p.inv_ca / b));
+                (f, df)
+            };
+            let (v, _) = newton_bracketed(
+                |v| residual(v, &mut v_sec),
+                0.0,
+                drive,
+                guess.primary,
+                1e-11 * (1.0 + drive),
+            );
+            let (i, _) = prim.current(v);
+            let (vs, _) = sec.voltage(i, v_sec);
+            (v, vs, i)
+        };
+        guess.primary = v_p;
+        guess.secondary = v_s;
+        let (v_cem, v_aem) = if cem_limits { (v_p, v_s) } else { (v_s, v_p) };
+        let k = &self.k;
+        let ws_cem = water_splitting_share(v_cem, k.water_splitting_onset, k.water_splitting_scale);
+        let ws_aem =
+            water_splitting_share(v_aem, k.water_splitting_onset_aem, k.water_splitting_scale);
+        let (pat, v_pat) = match self.pattern {
+            PatternSide::Aem => (&p.aem, v_aem),
+            _ => (&p.cem, v_cem),
+        };
+        PointSolution {
+            current_density: i,
+            v_cem,
+            v_aem,
+            xi: self.xi0 * (1.0 - 0.5 * (ws_cem + ws_aem)),
+            ws_cem,
+            ws_aem,
+            alpha: pat.alpha(v_pat),
+            wavelength: pat.wavelength(v_pat).unwrap_or(0.0),
+            limiting: prim.i_het,
+            cem_limits,
+        }
+    }
+
+    /// The cell-pair voltage that carries current density `i` at point `p` (the forward
+    /// direction of [`Cell::solve`]; used by tests and the current-voltage curve).
+    pub fn voltage_at(&self, p: &Point, i: f64) -> f64 {
+        let (vc, _) = p.cem.voltage(i, p.cem.onset());
+        let (va, _) = p.aem.voltage(i, p.aem.onset());
+        p.e_mem
+            + i * p.r_ohm
+            + self.vt * (vc + va + 2.0 * ((1.0 + i * p.inv_cc).ln() + (1.0 + i * p.inv_ca).ln()))
+    }
+}

@@ -1,0 +1,484 @@
+//! Along the channel: potentiostatic integration of the diluate concentration with an
+//! embedded Runge-Kutta pair and error control, fixed-length and product-target modes.
+//!
+//! Balances (co-current): dc_d/dx = -xi i / (F h_d u_d); the concentrate gains what the
+//! diluate loses, c_c = c_c,in + r (c_d,in - c_d) with r = h_d u_d / (h_c u_c), so one
+//! differential equation carries the salt. Counter-current: c_c(x) = c_c(0) - r (c_d,in -
+//! c_d(x)) with the concentrate outlet c_c(0) found by an outer bracketed solve (Brent), or
+//! known directly in product-target mode.
+//!
+//! Independent variable s = (x / L)^(1/3): the Leveque layer makes the local current vary as
+//! x^(1/3) near the inlet, which is smooth in s. Integrator: Dormand and Prince 5(4)
+//! (Dormand and Prince, J. Comput. Appl. Math. 6 (1980) 19), FSAL, local error control on the
+//! diluate concentration and the current integral. The current and the removed salt are
+//! integrated as extra components with the same stages, so the salt balance
+//! (c_in - c_out) Q_d F = integral xi i dA holds to round-off (Runge-Kutta preserves linear
+//! invariants).
+
+use crate::cell::{Cell, Guess, PointSolution};
+use crate::constants::FARADAY;
+use crate::numerics::brent;
+use crate::output::Profiles;
+use crate::ModelError;
+
+/// Number of integrated components: c_d, int i dx, int xi i dx, int alpha dx,
+/// int lambda dx (where electroconvective), length with electroconvection.
+const N: usize = 6;
+type State = [f64; N];
+
+/// Work counters over all integrations of one evaluation.
+#[derive(Debug, Clone, Copy, Default, PartialEq)]
+pub struct Stats {
+    /// Full channel integrations.
+    pub integrations: u32,
+    /// Point solves.
+    pub point_solves: u64,
+}
+
+/// What fixes the end of the integration.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum End {
+    /// Integrate to the full length.
+    Length,
+    /// Stop where the diluate reaches this concentration, mol/m^3.
+    Target(f64),
+}
+
+/// Boundary conditions of one integration.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Streams {
+    /// Diluate inlet concentration, mol/m^3.
+    pub c_d_in: f64,
+    /// Concentrate inlet concentration, mol/m^3.
+    pub c_c_in: f64,
+    /// Diluate velocity, m/s.
+    pub u_d: f64,
+    /// Concentrate velocity, m/s.
+    pub u_c: f64,
+    /// True for counter-current flow.
+    pub counter: bool,
+}
+
+/// Result of one integration along the channel.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ChannelResult {
+    /// Length integrated (the channel length, or the length found in target mode), m.
+    pub length_m: f64,
+    /// Diluate outlet concentration, mol/m^3.
+    pub c_d_out: f64,
+    /// Concentrate outlet concentration, mol/m^3.
+    pub c_c_out: f64,
+    /// Current per channel width, integral of i dx, A/m.
+    pub current_per_width: f64,
+    /// Integral of xi i dx, A/m (salt removal in current units).
+    pub salt_current_per_width: f64,
+    /// Length-mean active-area fraction of the patterned membrane, -.
+    pub alpha_mean: f64,
+    /// Mean vortex wavelength over the electroconvective part, m; None when none.
+    pub wavelength_mean: Option<f64>,
+    /// Largest CEM layer voltage at an accepted point, thermal units.
+    pub max_v_cem: f64,
+    /// Largest AEM layer voltage at an accepted point, thermal units.
+    pub max_v_aem: f64,
+    /// Largest water-splitting share, -.
+    pub max_water_splitting: f64,
+    /// Accepted steps.
+    pub steps: u32,
+    /// Right-hand-side evaluations (one point solve each).
+    pub rhs_evaluations: u32,
+    /// Profiles at the accepted steps, when requested.
+    pub profiles: Option<Profiles>,
+}
+
+// Dormand-Prince 5(4) tableau.
+const C: [f64; 7] = [0.0, 0.2, 0.3, 0.8, 8.0 / 9.0, 1.0, 1.0];
+const A: [[f64; 6]; 7] = [
+    [0.0; 6],
+    [0.2, 0.0, 0.0, 0.0, 0.0, 0.0],
+    [3.0 / 40.0, 9.0 / 40.0, 0.0, 0.0, 0.0, 0.0],
+    [44.0 / 45.0, -56.0 / 15.0, 32.0 / 9.0, 0.0, 0.0, 0.0],
+    [
+        19372.0 / 6561.0,
+        -25360.0 / 2187.0,
+        64448.0 / 6561.0,
+        -212.0 / 729.0,
+        0.0,
+        0.0,
+    ],
+    [
+        9017.0 / 3168.0,
+        -355.0 / 33.0,
+        46732.0 / 5247.0,
+        49.0 / 176.0,
+        -5103.0 / 18656.0,
+        0.0,
+    ],
+    [
+        35.0 / 384.0,
+        0.0,
+        500.0 / 1113.0,
+        125.0 / 192.0,
+        -2187.0 / 6784.0,
+        11.0 / 84.0,
+    ],
+];
+/// 5th-order minus embedded 4th-order weights.
+const E: [f64; 7] = [
+    71.0 / 57600.0,
+    0.0,
+    -71.0 / 16695.0,
+    71.0 / 1920.0,
+    -17253.0 / 339200.0,
+    22.0 / 525.0,
+    -1.0 / 40.0,
+];
+
+struct Rhs<'a> {
+    cell: &'a Cell,
+    streams: Streams,
+    length: f64,
+    u: f64,
+    /// Concentrate concentration at x = 0, mol/m^3.
+    c_c_at0: f64,
+    /// h_d u_d / (h_c u_c).
+    ratio: f64,
+    /// F h_d u_d.
+    flux: f64,
+    /// Counter-current concentrate uses the channel-mean layer thickness.
+    delta_c_mean: f64,
+    guess: Guess,
+    evaluations: u32,
+}
+
+impl Rhs<'_> {
+    fn c_c(&self, c_d: f64) -> f64 {
+        let gained = self.ratio * (self.streams.c_d_in - c_d);
+        if self.streams.counter {
+            self.c_c_at0 - gained
+        } else {
+            self.c_c_at0 + gained
+        }
+    }
+
+    fn point(&mut self, s: f64, c_d: f64) -> PointSolution {
+        let cell = self.cell;
+        let s = s.max(1e-4);
+        let delta_d = cell.sh_d.delta_at_s(s, self.length);
+        let delta_c = if self.streams.counter {
+            self.delta_c_mean
+        } else {
+            cell.sh_c.delta_at_s(s, self.length)
+        };
+        let c_d = c_d.max(1e-12 * self.streams.c_d_in);
+        let c_c = self.c_c(c_d).max(1e-12 * self.streams.c_d_in);
+        let p = cell.point(delta_d, delta_c, c_d, c_c);
+        self.evaluations += 1;
+        cell.solve(&p, self.u, &mut self.guess)
+    }
+
+    fn eval(&mut self, s: f64, y: &State) -> (State, PointSolution) {
+        let dxds = 3.0 * self.length * s * s;
+        if dxds == 0.0 {
+            return ([0.0; N], PointSolution::default());
+        }
+        let sol = self.point(s, y[0]);
+        let i = sol.current_density;
+        let ec = sol.wavelength > 0.0;
+        (
+            [
+                -dxds * sol.xi * i / self.flux,
+                dxds * i,
+                dxds * sol.xi * i,
+                dxds * sol.alpha,
+                dxds * sol.wavelength,
+                if ec { dxds } else { 0.0 },
+            ],
+            sol,
+        )
+    }
+}
+
+/// One Dormand-Prince step from (s, y) with derivative k0; returns (y_new, k_new, error
+/// vector, solution at the end).
+fn dp_step(
+    rhs: &mut Rhs,
+    s: f64,
+    y: &State,
+    k0: &State,
+    h: f64,
+) -> (State, State, State, PointSolution) {
+    let mut k = [[0.0; N]; 7];
+    k[0] = *k0;
+    let mut end_sol = PointSolution::default();
+    for st in 1..7 {
+        let mut yt = *y;
+        for (j, kj) in k.iter().enumerate().take(st) {
+            let a = A[st][j];
+            if a != 0.0 {
+                for c in 0..N {
+                    yt[c] += h * a * kj[c];
+                }
+            }
+        }
+        let (f, sol) = rhs.eval(s + C[st] * h, &yt);
+        k[st] = f;
+        if st == 6 {
+            end_sol = sol;
+        }
+    }
+    // Stage 7 is at the 5th-order solution (FSAL): y_new = y + h sum A[6][j] k_j.
+    let mut y_new = *y;
+    let mut err = [0.0; N];
+    for c in 0..N {
+        let mut acc = 0.0;
+        let mut e = 0.0;
+        for j in 0..6 {
+            acc += A[6][j] * k[j][c];
+        }
+        for (j, kj) in k.iter().enumerate() {
+            e += E[j] * kj[c];
+        }
+        y_new[c] += h * acc;
+        err[c] = h * e;
+    }
+    (y_new, k[6], err, end_sol)
+}
+
+fn push_profile(p: &mut Profiles, x: f64, c_d: f64, c_c: f64, sol: &PointSolution) {
+    p.x_m.push(x);
+    p.diluate_mol_m3.push(c_d);
+    p.concentrate_mol_m3.push(c_c);
+    p.current_density_A_m2.push(sol.current_density);
+    p.limiting_current_density_A_m2.push(sol.limiting);
+    p.active_area_fraction.push(sol.alpha);
+    p.cem_layer_voltage_thermal.push(sol.v_cem);
+}
+
+/// Integrate one channel at cell-pair voltage `u` with the concentrate at x = 0 given.
+#[allow(clippy::too_many_arguments)]
+fn integrate_once(
+    cell: &Cell,
+    streams: Streams,
+    length: f64,
+    u: f64,
+    c_c_at0: f64,
+    end: End,
+    rel_tol: f64,
+    want_profiles: bool,
+    stats: &mut Stats,
+) -> Result<ChannelResult, ModelError> {
+    stats.integrations += 1;
+    let mut rhs = Rhs {
+        cell,
+        streams,
+        length,
+        u,
+        c_c_at0,
+        ratio: cell.gap_d * streams.u_d / (cell.gap_c * streams.u_c),
+        flux: FARADAY * cell.gap_d * streams.u_d,
+        delta_c_mean: cell.sh_c.hydraulic_diameter_m / cell.sh_c.mean(length),
+        guess: Guess::default(),
+        evaluations: 0,
+    };
+    let mut profiles = want_profiles.then(Profiles::default);
+    if let Some(p) = profiles.as_mut() {
+        let sol = rhs.point(0.0, streams.c_d_in);
+        push_profile(p, 0.0, streams.c_d_in, rhs.c_c(streams.c_d_in), &sol);
+    }
+    let mut y: State = [streams.c_d_in, 0.0, 0.0, 0.0, 0.0, 0.0];
+    let mut s = 0.0;
+    let (mut k0, _) = rhs.eval(s, &y);
+    let mut h: f64 = 0.1;
+    let atol0 = rel_tol * 1e-6 * streams.c_d_in;
+    let mut steps = 0u32;
+    let (mut max_v_cem, mut max_v_aem, mut max_ws) = (0.0f64, 0.0f64, 0.0f64);
+    let mut end_s = 1.0;
+    let mut done = false;
+    while !done {
+        if steps > 20_000 {
+            return Err(ModelError::Numerical(
+                "along-channel integration took more than 20000 steps".into(),
+            ));
+        }
+        h = h.min(1.0 - s);
+        let (y_new, k_new, err, sol) = dp_step(&mut rhs, s, &y, &k0, h);
+        let sc0 = atol0 + rel_tol * y[0].abs().max(y_new[0].abs());
+        let sc1 = rel_tol * (1e-9 + y[1].abs().max(y_new[1].abs()));
+        let en = (err[0].abs() / sc0).max(err[1].abs() / sc1);
+        if !en.is_finite() || y_new.iter().any(|v| !v.is_finite()) {
+            if h < 1e-12 {
+                return Err(ModelError::Numerical(
+                    "non-finite state along the channel".into(),
+                ));
+            }
+            h *= 0.25;
+            continue;
+        }
+        if en > 1.0 {
+            h *= (0.9 * en.powf(-0.2)).max(0.2);
+            if h < 1e-12 {
+                return Err(ModelError::Numerical(
+                    "step size underflow along the channel".into(),
+                ));
+            }
+            continue;
+        }
+        // Accepted step. Event check in target mode.
+        let mut y_acc = y_new;
+        let mut k_acc = k_new;
+        let mut sol_acc = sol;
+        let mut s_acc = s + h;
+        if let End::Target(target) = end {
+            if y_new[0] <= target {
+                // Locate the crossing on a cubic Hermite interpolant of c_d(s), then re-step
+                // exactly to it and correct with secant steps.
+                let (y0a, y0b, fa, fb) = (y[0], y_new[0], k0[0] * h, k_new[0] * h);
+                let herm = |t: f64| {
+                    let t2 = t * t;
+                    let t3 = t2 * t;
+                    (2.0 * t3 - 3.0 * t2 + 1.0) * y0a
+                        + (t3 - 2.0 * t2 + t) * fa
+                        + (-2.0 * t3 + 3.0 * t2) * y0b
+                        + (t3 - t2) * fb
+                };
+                let mut lo = 0.0;
+                let mut hi = 1.0;
+                for _ in 0..60 {
+                    let mid = 0.5 * (lo + hi);
+                    if herm(mid) > target {
+                        lo = mid;
+                    } else {
+                        hi = mid;
+                    }
+                }
+                let mut hs = h * 0.5 * (lo + hi);
+                for _ in 0..8 {
+                    let (yt, kt, _, st) = dp_step(&mut rhs, s, &y, &k0, hs);
+                    y_acc = yt;
+                    k_acc = kt;
+                    sol_acc = st;
+                    let miss = yt[0] - target;
+                    if miss.abs() <= 1e-4 * rel_tol * target || kt[0] == 0.0 {
+                        break;
+                    }
+                    hs = (hs - miss / kt[0]).clamp(1e-3 * h, h);
+                }
+                s_acc = s + hs;
+                end_s = s_acc;
+                done = true;
+            }
+        }
+        steps += 1;
+        y = y_acc;
+        k0 = k_acc;
+        s = s_acc;
+        max_v_cem = max_v_cem.max(sol_acc.v_cem);
+        max_v_aem = max_v_aem.max(sol_acc.v_aem);
+        max_ws = max_ws.max(sol_acc.ws_cem).max(sol_acc.ws_aem);
+        if let Some(p) = profiles.as_mut() {
+            push_profile(p, length * s * s * s, y[0], rhs.c_c(y[0]), &sol_acc);
+        }
+        if s >= 1.0 {
+            done = true;
+        }
+        h *= (0.9 * en.max(1e-10).powf(-0.2)).min(5.0);
+    }
+    stats.point_solves += rhs.evaluations as u64;
+    if let End::Target(target) = end {
+        if end_s >= 1.0 && y[0] > target {
+            return Err(ModelError::TargetUnreachable {
+                target_mol_m3: target,
+                max_length_m: length,
+                outlet_mol_m3: y[0],
+            });
+        }
+    }
+    let l = length * end_s * end_s * end_s;
+    let c_c_end = rhs.c_c(y[0]);
+    let c_c_out = if streams.counter { c_c_at0 } else { c_c_end };
+    Ok(ChannelResult {
+        length_m: l,
+        c_d_out: y[0],
+        c_c_out,
+        current_per_width: y[1],
+        salt_current_per_width: y[2],
+        alpha_mean: y[3] / l,
+        wavelength_mean: (y[5] > 0.0).then(|| y[4] / y[5]),
+        max_v_cem,
+        max_v_aem,
+        max_water_splitting: max_ws,
+        steps,
+        rhs_evaluations: rhs.evaluations,
+        profiles,
+    })
+}
+
+/// Integrate the channel at cell-pair voltage `u` (V): `length` is the channel length
+/// (fixed mode) or the longest length searched (target mode).
+#[allow(clippy::too_many_arguments)]
+pub fn integrate(
+    cell: &Cell,
+    streams: Streams,
+    length: f64,
+    u: f64,
+    end: End,
+    rel_tol: f64,
+    want_profiles: bool,
+    stats: &mut Stats,
+) -> Result<ChannelResult, ModelError> {
+    let ratio = cell.gap_d * streams.u_d / (cell.gap_c * streams.u_c);
+    if !streams.counter {
+        return integrate_once(
+            cell,
+            streams,
+            length,
+            u,
+            streams.c_c_in,
+            end,
+            rel_tol,
+            want_profiles,
+            stats,
+        );
+    }
+    if let End::Target(target) = end {
+        // The diluate outlet is the target, so the concentrate outlet is known.
+        let c_c0 = streams.c_c_in + ratio * (streams.c_d_in - target);
+        return integrate_once(
+            cell,
+            streams,
+            length,
+            u,
+            c_c0,
+            end,
+            rel_tol,
+            want_profiles,
+            stats,
+        );
+    }
+    // Counter-current, fixed length: find the diluate outlet c such that integrating with
+    // the concentrate outlet c_c,in + r (c_in - c) returns c.
+    let mut g = |c_out: f64| -> Result<f64, ModelError> {
+        let c_c0 = streams.c_c_in + ratio * (streams.c_d_in - c_out);
+        let r = integrate_once(cell, streams, length, u, c_c0, end, rel_tol, false, stats)?;
+        Ok(r.c_d_out - c_out)
+    };
+    let hi = streams.c_d_in;
+    let lo = 0.0;
+    let g_hi = g(hi)?;
+    let g_lo = g(lo)?;
+    let tol = 1e-3 * rel_tol * streams.c_d_in;
+    let root = brent(&mut g, lo, hi, g_lo, g_hi, tol, 100)?
+        .ok_or_else(|| ModelError::Numerical("counter-current outlet not bracketed".into()))?;
+    let c_c0 = streams.c_c_in + ratio * (streams.c_d_in - root);
+    integrate_once(
+        cell,
+        streams,
+        length,
+        u,
+        c_c0,
+        end,
+        rel_tol,
+        want_profiles,
+        stats,
+    )
+}

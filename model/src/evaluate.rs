@@ -1,0 +1,341 @@
+//! One evaluation: drive (voltage or current), along-channel integration, and the assembly of
+//! every output (model.md section 6).
+
+use crate::cell::{Cell, Guess};
+use crate::channel::{integrate, ChannelResult, End, Stats, Streams};
+use crate::constants::FARADAY;
+use crate::design::{Design, Drive, FlowArrangement, LengthMode, Options, PatternSide};
+use crate::energy::{capital_recovery_factor, levelised_cost, minimum_work_streams, J_PER_KWH};
+use crate::hydraulics::{channel_flow, pumping_power};
+use crate::numerics::brent;
+use crate::output::*;
+use crate::properties::{debye_length, properties};
+use crate::transfer::peers_limit;
+use crate::validity::{check_design, warnings, Observed};
+use crate::{ModelError, RomConstants};
+
+/// One point of the cell-pair current-voltage curve.
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct IvPoint {
+    /// Cell-pair voltage, V.
+    pub voltage_v: f64,
+    /// Current density, A/m^2.
+    pub current_density_a_m2: f64,
+    /// CEM diluate-side layer voltage, thermal units.
+    pub cem_layer_voltage_thermal: f64,
+    /// Active-area fraction of the patterned membrane, -.
+    pub active_area_fraction: f64,
+}
+
+fn streams(d: &Design) -> Streams {
+    Streams {
+        c_d_in: d.water.feed_concentration_mol_m3,
+        c_c_in: d.water.concentrate_feed_concentration_mol_m3,
+        u_d: d.operation.velocity_m_s,
+        u_c: d.operation.concentrate_velocity_m_s,
+        counter: d.operation.flow == FlowArrangement::CounterCurrent,
+    }
+}
+
+/// Cell-pair current-voltage curve at the channel inlet: feed concentrations on both sides,
+/// diffusion layers at their channel-mean thickness (d_h / mean Sh). For report figures.
+/// Voltages at or below the membrane potential give zero current. Invalid designs give an
+/// empty curve.
+pub fn iv_curve(design: &Design, constants: &RomConstants, voltages_v: &[f64]) -> Vec<IvPoint> {
+    if check_design(design, &Options::default()).is_err() || constants.validate().is_err() {
+        return Vec::new();
+    }
+    let cell = Cell::new(design, constants);
+    let l = design.channel.length_m;
+    let delta_d = cell.sh_d.hydraulic_diameter_m / cell.sh_d.mean(l);
+    let delta_c = cell.sh_c.hydraulic_diameter_m / cell.sh_c.mean(l);
+    let p = cell.point(
+        delta_d,
+        delta_c,
+        design.water.feed_concentration_mol_m3,
+        design.water.concentrate_feed_concentration_mol_m3,
+    );
+    let mut guess = Guess::default();
+    voltages_v
+        .iter()
+        .map(|&u| {
+            let s = cell.solve(&p, u, &mut guess);
+            IvPoint {
+                voltage_v: u,
+                current_density_a_m2: s.current_density,
+                cem_layer_voltage_thermal: s.v_cem,
+                active_area_fraction: s.alpha,
+            }
+        })
+        .collect()
+}
+
+/// Run the channel for the drive of the design; returns the voltage used and the result.
+fn run_drive(
+    d: &Design,
+    cell: &Cell,
+    opts: &Options,
+    stats: &mut Stats,
+) -> Result<(f64, ChannelResult), ModelError> {
+    let st = streams(d);
+    let end = match d.operation.length_mode {
+        LengthMode::Fixed => End::Length,
+        LengthMode::ProductTarget {
+            product_concentration_mol_m3,
+        } => End::Target(product_concentration_mol_m3),
+    };
+    let l = d.channel.length_m;
+    match d.operation.drive {
+        Drive::Voltage {
+            cell_pair_voltage_v,
+        } => {
+            let r = integrate(
+                cell,
+                st,
+                l,
+                cell_pair_voltage_v,
+                end,
+                opts.rel_tol,
+                opts.profiles,
+                stats,
+            )?;
+            Ok((cell_pair_voltage_v, r))
+        }
+        Drive::Current { cell_current_a } => {
+            // The total current rises monotonically with the cell-pair voltage: bracket it
+            // from the inlet membrane potential upwards, then Brent.
+            let w = d.channel.width_m;
+            let e_in = (2.0 * cell.xi0 * cell.vt * (st.c_c_in / st.c_d_in).ln()).max(0.0);
+            let current = |u: f64, stats: &mut Stats| -> Result<f64, ModelError> {
+                let r = integrate(cell, st, l, u, end, opts.rel_tol, false, stats)?;
+                Ok(w * r.current_per_width - cell_current_a)
+            };
+            let lo = e_in + 1e-9;
+            let f_lo = current(lo, stats)?;
+            let mut hi = e_in + 0.25;
+            let mut f_hi = current(hi, stats)?;
+            while f_hi < 0.0 {
+                hi = e_in + 2.0 * (hi - e_in);
+                if hi > 50.0 {
+                    return Err(ModelError::Input {
+                        field: "cell_current_a",
+                        value: cell_current_a,
+                        allowed: "a current this cell pair carries below 50 V",
+                    });
+                }
+                f_hi = current(hi, stats)?;
+            }
+            let u = brent(
+                |u| current(u, stats),
+                lo,
+                hi,
+                f_lo,
+                f_hi,
+                1e-3 * opts.rel_tol * hi,
+                200,
+            )?
+            .ok_or_else(|| {
+                ModelError::Numerical("cell voltage for the given current not bracketed".into())
+            })?;
+            let r = integrate(cell, st, l, u, end, opts.rel_tol, opts.profiles, stats)?;
+            Ok((u, r))
+        }
+    }
+}
+
+/// Evaluate one design: along-channel integration of the cell pair, energy, cost, warnings.
+///
+/// Errors: [`ModelError::Input`] for an input (or ROM constant) outside its physical range,
+/// [`ModelError::TargetUnreachable`] when a product target is not reached within
+/// `channel.length_m`, [`ModelError::Numerical`] when the integration fails.
+pub fn evaluate(
+    design: &Design,
+    constants: &RomConstants,
+    options: &Options,
+) -> Result<Evaluation, ModelError> {
+    check_design(design, options)?;
+    constants.validate()?;
+    let d = design;
+    let k = constants;
+    let cell = Cell::new(d, k);
+    let mut stats = Stats::default();
+    let (u, run) = run_drive(d, &cell, options, &mut stats)?;
+    let w = &d.water;
+    let ch = &d.channel;
+    let m = &d.membranes;
+    let op = &d.operation;
+    let e = &d.economics;
+    let l = run.length_m;
+    let props = cell.props;
+
+    // Hydraulics over the length used.
+    let flow = |gap, u_s, c| {
+        let p = properties(w.salt, w.temperature_k, c);
+        channel_flow(
+            ch.spacer,
+            gap,
+            l,
+            u_s,
+            p.density_kg_m3,
+            p.dynamic_viscosity_pa_s,
+            p.salt_diffusivity_m2_s,
+        )
+    };
+    let flow_d = flow(ch.gap_m, op.velocity_m_s, w.feed_concentration_mol_m3);
+    let flow_c = flow(
+        ch.concentrate_gap_m,
+        op.concentrate_velocity_m_s,
+        w.concentrate_feed_concentration_mol_m3,
+    );
+
+    // Transfer at the feed.
+    let sh_mean = cell.sh_d.mean(l);
+    let delta_mean = cell.sh_d.hydraulic_diameter_m / sh_mean;
+    let tp = props.cation_transport_number;
+    let d_salt = props.salt_diffusivity_m2_s;
+    let c_f = w.feed_concentration_mol_m3;
+    let ilim_cem = peers_limit(d_salt, c_f, m.cem_transport_number, tp, delta_mean);
+    let ilim_aem = peers_limit(d_salt, c_f, m.aem_transport_number, 1.0 - tp, delta_mean);
+    let het_cem = cell.cem.layer(ilim_cem, delta_mean).i_het;
+    let het_aem = cell.aem.layer(ilim_aem, delta_mean).i_het;
+    let cem_limits = het_cem <= het_aem;
+
+    // Performance.
+    let width = ch.width_m;
+    let q_d = ch.gap_m * op.velocity_m_s * width;
+    let q_c = ch.concentrate_gap_m * op.concentrate_velocity_m_s * width;
+    let current = width * run.current_per_width;
+    let c_out = run.c_d_out;
+    let removed = c_f - c_out;
+    let current_efficiency = if current > 0.0 {
+        removed * q_d * FARADAY / current
+    } else {
+        0.0
+    };
+    let electrical = u * current / q_d / J_PER_KWH;
+    let pumping = (pumping_power(flow_d.pressure_drop_pa, q_d, e.pump_efficiency)
+        + pumping_power(flow_c.pressure_drop_pa, q_c, e.pump_efficiency))
+        / q_d
+        / J_PER_KWH;
+    let w_min = minimum_work_streams(
+        w.temperature_k,
+        q_d,
+        q_c,
+        c_f,
+        w.concentrate_feed_concentration_mol_m3,
+        c_out,
+        run.c_c_out,
+    ) / J_PER_KWH;
+    let specific = electrical + pumping;
+
+    // Economics: one cell pair has one CEM and one AEM of area L W.
+    let area_cell = l * width;
+    let product_m3_day = q_d * 86_400.0;
+    let area_per_capacity = 2.0 * area_cell / product_m3_day;
+    let patterned_membranes = match m.pattern_side {
+        _ if m.open_fraction >= 1.0 => 0.0,
+        PatternSide::Both => 2.0,
+        _ => 1.0,
+    };
+    let membrane_cost_per_m3_day = area_cell
+        * (2.0 * e.membrane_price_per_m2 + patterned_membranes * e.pattern_surcharge_per_m2)
+        / product_m3_day;
+    let crf = capital_recovery_factor(e.discount_rate, e.membrane_life_years);
+    let lcow = levelised_cost(
+        membrane_cost_per_m3_day,
+        crf,
+        e.operating_hours_per_year,
+        specific,
+        e.electricity_price_per_kwh,
+    );
+
+    let debye_min_c = debye_length(
+        props.relative_permittivity,
+        w.temperature_k,
+        c_out.max(1e-6),
+    );
+    let observed = Observed {
+        reynolds: flow_d.reynolds,
+        debye_length_min_c_m: debye_min_c,
+        max_v_cem: run.max_v_cem,
+        max_v_aem: run.max_v_aem,
+        max_water_splitting: run.max_water_splitting,
+        outlet_mol_m3: c_out,
+        concentrate_outlet_mol_m3: run.c_c_out,
+    };
+    let warnings = warnings(d, k, &observed);
+    let wavelength = run.wavelength_mean;
+    Ok(Evaluation {
+        inputs: InputsEcho {
+            salt: w.salt.name().into(),
+            temperature_K: w.temperature_k,
+            feed_concentration_mol_m3: c_f,
+            gap_m: ch.gap_m,
+            length_m: l,
+            width_m: width,
+            velocity_m_s: op.velocity_m_s,
+            spacer: ch.spacer.name().into(),
+            pitch_m: m.pitch_m,
+            open_fraction: m.open_fraction,
+            cell_pair_voltage_V: u,
+            cem_transport_number: m.cem_transport_number,
+            aem_transport_number: m.aem_transport_number,
+        },
+        properties: PropertiesOut {
+            salt_diffusivity_m2_s: d_salt,
+            cation_transport_number: tp,
+            density_kg_m3: props.density_kg_m3,
+            dynamic_viscosity_Pa_s: props.dynamic_viscosity_pa_s,
+            kinematic_viscosity_m2_s: props.kinematic_viscosity_m2_s,
+            conductivity_S_m: props.conductivity_s_m,
+            debye_length_m: props.debye_length_m,
+            thermal_voltage_V: props.thermal_voltage_v,
+        },
+        hydraulics: HydraulicsOut {
+            hydraulic_diameter_m: flow_d.hydraulic_diameter_m,
+            reynolds: flow_d.reynolds,
+            schmidt: flow_d.schmidt,
+            pressure_drop_Pa: flow_d.pressure_drop_pa,
+        },
+        transfer: TransferOut {
+            sherwood_mean: sh_mean,
+            boundary_layer_thickness_mean_m: delta_mean,
+            limiting_current_density_feed_A_m2: if cem_limits { ilim_cem } else { ilim_aem },
+            limiting_membrane: if cem_limits { "CEM" } else { "AEM" }.into(),
+            heterogeneous_limiting_current_density_feed_A_m2: het_cem.min(het_aem),
+        },
+        performance: PerformanceOut {
+            outlet_concentration_mol_m3: c_out,
+            concentrate_outlet_concentration_mol_m3: run.c_c_out,
+            water_recovery: q_d / (q_d + q_c),
+            salt_removal_fraction: removed / c_f,
+            mean_current_density_A_m2: run.current_per_width / l,
+            cell_current_A: current,
+            diluate_flow_m3_s: q_d,
+            current_efficiency,
+            electrical_energy_kWh_m3: electrical,
+            pumping_energy_kWh_m3: pumping,
+            specific_energy_kWh_m3: specific,
+            thermodynamic_minimum_kWh_m3: w_min,
+            active_area_fraction: run.alpha_mean,
+            vortex_wavelength_m: wavelength,
+            pitch_over_wavelength: wavelength.map(|lv| m.pitch_m / lv),
+            max_cem_layer_voltage_thermal: run.max_v_cem,
+            max_aem_layer_voltage_thermal: run.max_v_aem,
+        },
+        economics: EconomicsOut {
+            salt_removal_rate_mol_m2_s: removed * q_d / area_cell,
+            membrane_area_m2_per_m3_day: area_per_capacity,
+            membrane_cost_per_m3_day,
+            levelised_cost_per_m3: lcow,
+            plant_membrane_area_m2: area_per_capacity * e.plant_capacity_m3_day,
+        },
+        warnings,
+        numerics: NumericsOut {
+            integration_steps: run.steps,
+            point_solves: stats.point_solves,
+            channel_integrations: stats.integrations,
+        },
+        profiles: run.profiles,
+    })
+}
