@@ -10,4 +10,5 @@ pub mod check;
 pub mod error;
 pub mod eval;
 pub mod fsio;
+pub mod run;
 pub mod study;

@@ -101,7 +101,22 @@ fn dispatch(cli: Cli) -> Result<(), CliError> {
             json,
             profile,
         } => studies::eval::run(&study, &sets, json, profile),
-        Command::Run { .. } => Err(CliError::Runtime("`stria run` is not yet built".into())),
+        Command::Run {
+            study,
+            out,
+            threads,
+            max_evals,
+            hours,
+            fresh,
+        } => studies::run::run(&studies::run::RunOptions {
+            study,
+            out,
+            threads,
+            max_evals,
+            hours,
+            fresh,
+        })
+        .map(|_| ()),
         Command::Report { .. } | Command::Handoff { .. } | Command::Fit { .. } => {
             Err(CliError::Runtime("this command is not yet built".into()))
         }

@@ -1,0 +1,237 @@
+//! The files of a run directory (layout in CONTRACT.md): names, headers, rows, checkpoint.
+
+use std::collections::HashMap;
+use std::path::{Path, PathBuf};
+
+use optimizer::Evaluated;
+use serde::{Deserialize, Serialize};
+
+use crate::study::{Objective, Study};
+
+/// Rows of evaluations.csv kept at most; later evaluations are counted but not written.
+pub const EVALUATIONS_CSV_CAP: u64 = 1_000_000;
+
+/// Version of checkpoint.json's layout.
+pub const CHECKPOINT_VERSION: u32 = 1;
+
+/// Paths of a run directory.
+#[derive(Debug, Clone)]
+pub struct RunDir {
+    /// The directory.
+    pub dir: PathBuf,
+}
+
+impl RunDir {
+    /// A run directory at `dir`.
+    pub fn new(dir: &Path) -> RunDir {
+        RunDir {
+            dir: dir.to_path_buf(),
+        }
+    }
+    /// study.toml
+    pub fn study(&self) -> PathBuf {
+        self.dir.join("study.toml")
+    }
+    /// checkpoint.json
+    pub fn checkpoint(&self) -> PathBuf {
+        self.dir.join("checkpoint.json")
+    }
+    /// evaluations.csv
+    pub fn evaluations(&self) -> PathBuf {
+        self.dir.join("evaluations.csv")
+    }
+    /// front.csv
+    pub fn front(&self) -> PathBuf {
+        self.dir.join("front.csv")
+    }
+    /// history.csv
+    pub fn history(&self) -> PathBuf {
+        self.dir.join("history.csv")
+    }
+    /// summary.json
+    pub fn summary(&self) -> PathBuf {
+        self.dir.join("summary.json")
+    }
+    /// Every file `stria run` writes (what `--fresh` removes).
+    pub fn all(&self) -> Vec<PathBuf> {
+        vec![
+            self.checkpoint(),
+            self.evaluations(),
+            self.front(),
+            self.history(),
+            self.summary(),
+            self.study(),
+        ]
+    }
+}
+
+/// The bookkeeping stored beside the optimiser state.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+pub struct Checkpoint {
+    /// Layout version.
+    pub version: u32,
+    /// Fingerprint of the study.
+    pub fingerprint: String,
+    /// Byte length of evaluations.csv at this checkpoint.
+    pub evaluations_csv_bytes: u64,
+    /// Data rows in evaluations.csv at this checkpoint.
+    pub evaluations_csv_rows: u64,
+    /// Byte length of history.csv at this checkpoint.
+    pub history_csv_bytes: u64,
+    /// Wall-clock seconds spent by all invocations so far.
+    pub elapsed_s: f64,
+    /// The optimiser state (`optimizer::Run`).
+    pub run: serde_json::Value,
+}
+
+/// A number as written in every CSV: Rust's shortest round-trip form, so it is bit-stable.
+pub fn num(x: f64) -> String {
+    format!("{x}")
+}
+
+fn csv_line(fields: &[String]) -> String {
+    let mut w = csv::WriterBuilder::new()
+        .has_headers(false)
+        .from_writer(Vec::new());
+    // Writing to memory cannot fail.
+    let _ = w.write_record(fields);
+    let bytes = w.into_inner().unwrap_or_default();
+    String::from_utf8(bytes).unwrap_or_default()
+}
+
+/// Header of evaluations.csv.
+pub fn evaluations_header(study: &Study) -> String {
+    let mut h: Vec<String> = vec!["id".into(), "generation".into()];
+    h.extend(study.variables.iter().map(|v| v.kind.column().to_string()));
+    h.extend(study.objectives.iter().map(|o| o.column().to_string()));
+    h.extend(study.constraints.iter().map(|c| c.column().to_string()));
+    h.push("feasible".into());
+    h.push("reason".into());
+    csv_line(&h)
+}
+
+/// The natural-direction objective values of an evaluated design.
+pub fn natural_objectives(study: &Study, e: &Evaluated) -> Vec<f64> {
+    study
+        .objectives
+        .iter()
+        .zip(&e.objectives)
+        .map(|(o, v)| if o.maximise() { -v } else { *v })
+        .collect()
+}
+
+/// One evaluations.csv row (objectives in their natural direction; blank when failed).
+pub fn evaluation_row(study: &Study, e: &Evaluated) -> String {
+    let mut r: Vec<String> = vec![e.id.to_string(), e.generation.to_string()];
+    r.extend(e.x.iter().map(|x| num(*x)));
+    if e.failure.is_some() {
+        r.extend(study.objectives.iter().map(|_| String::new()));
+        r.extend(study.constraints.iter().map(|_| String::new()));
+    } else {
+        r.extend(natural_objectives(study, e).iter().map(|x| num(*x)));
+        r.extend(e.constraints.iter().map(|x| num(*x)));
+    }
+    r.push(if e.is_feasible() { "true" } else { "false" }.into());
+    let reason = match &e.failure {
+        Some(f) => f.clone(),
+        None if e.violation > 0.0 => {
+            let broken: Vec<&str> = study
+                .constraints
+                .iter()
+                .zip(&e.constraints)
+                .filter(|(_, g)| **g > 0.0)
+                .map(|(c, _)| c.key())
+                .collect();
+            format!("violates {}", broken.join(", "))
+        }
+        None => String::new(),
+    };
+    r.push(reason);
+    csv_line(&r)
+}
+
+/// Extra columns of front.csv, in order (a column already an objective is left out).
+pub const FRONT_EXTRAS: [&str; 8] = [
+    "outlet_concentration_mol_m3",
+    "salt_removal_fraction",
+    "mean_current_density_A_m2",
+    "specific_energy_kWh_m3",
+    "active_area_fraction",
+    "vortex_wavelength_m",
+    "pitch_over_wavelength",
+    "boundary_layer_thickness_mean_m",
+];
+
+fn extras_kept(study: &Study) -> Vec<&'static str> {
+    FRONT_EXTRAS
+        .iter()
+        .copied()
+        .filter(|c| {
+            !study
+                .objectives
+                .iter()
+                .any(|o: &Objective| o.column() == *c)
+        })
+        .collect()
+}
+
+/// Header of front.csv.
+pub fn front_header(study: &Study) -> String {
+    let mut h: Vec<String> = vec!["id".into()];
+    h.extend(study.variables.iter().map(|v| v.kind.column().to_string()));
+    h.extend(study.objectives.iter().map(|o| o.column().to_string()));
+    h.extend(extras_kept(study).iter().map(|s| s.to_string()));
+    csv_line(&h)
+}
+
+/// The extra front columns of one design, from a fresh model evaluation (blank if it fails,
+/// which cannot happen for a design that was evaluated before: the model is deterministic).
+pub fn front_extras(study: &Study, x: &[f64]) -> Vec<String> {
+    let kept = extras_kept(study);
+    let Ok((e, _)) = study.evaluate_point(x) else {
+        return kept.iter().map(|_| String::new()).collect();
+    };
+    let pitch = study.design_at(x).membranes.pitch_m;
+    let wl = e.performance.vortex_wavelength_m;
+    kept.iter()
+        .map(|c| match *c {
+            "outlet_concentration_mol_m3" => num(e.performance.outlet_concentration_mol_m3),
+            "salt_removal_fraction" => num(e.performance.salt_removal_fraction),
+            "mean_current_density_A_m2" => num(e.performance.mean_current_density_A_m2),
+            "specific_energy_kWh_m3" => num(e.performance.specific_energy_kWh_m3),
+            "active_area_fraction" => num(e.performance.active_area_fraction),
+            "vortex_wavelength_m" => wl.map(num).unwrap_or_default(),
+            "pitch_over_wavelength" => wl.map(|l| num(pitch / l)).unwrap_or_default(),
+            _ => num(e.transfer.boundary_layer_thickness_mean_m),
+        })
+        .collect()
+}
+
+/// front.csv text for the archive, sorted by id. `cache` keeps the extra columns of members
+/// already computed (pruned to the current members, so it stays as small as the archive).
+pub fn front_csv(
+    study: &Study,
+    members: &[Evaluated],
+    cache: &mut HashMap<u64, Vec<String>>,
+) -> String {
+    let mut sorted: Vec<&Evaluated> = members.iter().collect();
+    sorted.sort_by_key(|e| e.id);
+    let ids: std::collections::HashSet<u64> = sorted.iter().map(|e| e.id).collect();
+    cache.retain(|id, _| ids.contains(id));
+    let mut out = front_header(study);
+    for e in sorted {
+        let extras = cache
+            .entry(e.id)
+            .or_insert_with(|| front_extras(study, &e.x))
+            .clone();
+        let mut r: Vec<String> = vec![e.id.to_string()];
+        r.extend(e.x.iter().map(|x| num(*x)));
+        r.extend(natural_objectives(study, e).iter().map(|x| num(*x)));
+        r.extend(extras);
+        out.push_str(&csv_line(&r));
+    }
+    out
+}
+
+/// Header of history.csv.
+pub const HISTORY_HEADER: &str = "generation,evaluations,feasible_share,hypervolume,elapsed_s\n";

@@ -1,0 +1,490 @@
+//! `stria run`: a study's optimisation with a resumable run directory.
+//!
+//! Each generation, in this order: evaluation rows appended (fsync), history row appended
+//! (fsync), front.csv and summary.json replaced atomically, then checkpoint.json replaced
+//! atomically. The checkpoint is the commit point: it records the byte lengths of the two
+//! appended files, so a run killed at any instant resumes from the last checkpoint, cuts the
+//! rows of the unfinished generation and repeats that generation exactly.
+
+pub mod files;
+pub mod problem;
+mod progress;
+
+use std::collections::HashMap;
+use std::path::{Path, PathBuf};
+use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::Arc;
+use std::time::{Duration, Instant};
+
+use optimizer::{Run, StepReport, StopReason};
+
+use crate::error::{io_error, CliError};
+use crate::fsio::{append_synced, truncate_synced, write_atomic};
+use crate::study::{read_fingerprint, Study};
+use files::{Checkpoint, RunDir, CHECKPOINT_VERSION, EVALUATIONS_CSV_CAP, HISTORY_HEADER};
+use problem::{run_config, StudyProblem};
+
+/// Options of `stria run`.
+#[derive(Debug, Clone, Default)]
+pub struct RunOptions {
+    /// The study file.
+    pub study: PathBuf,
+    /// Run directory (default `runs/<study file stem>`).
+    pub out: Option<PathBuf>,
+    /// Worker threads (default: rayon's choice, all cores).
+    pub threads: Option<usize>,
+    /// Evaluation budget override.
+    pub max_evals: Option<u64>,
+    /// Wall-clock budget override for this invocation, hours.
+    pub hours: Option<f64>,
+    /// Discard an existing run in the directory.
+    pub fresh: bool,
+}
+
+/// Why the loop ended, for the final message.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Ended {
+    /// The optimiser is done (budget, completed, stalled).
+    Finished(StopReason),
+    /// Stopped before the end (Ctrl-C or the wall-clock budget); resumable.
+    Paused(StopReason),
+}
+
+struct State {
+    run: Run,
+    eval_bytes: u64,
+    eval_rows: u64,
+    history_bytes: u64,
+    elapsed_before_s: f64,
+    cap_noted: bool,
+}
+
+fn cmd_err(field: &str, message: impl Into<String>, allowed: &str) -> CliError {
+    CliError::input("command line", None, field, message, allowed)
+}
+
+fn file_len(path: &Path) -> Result<u64, CliError> {
+    std::fs::metadata(path)
+        .map(|m| m.len())
+        .map_err(|e| io_error("read", path, e))
+}
+
+/// The run directory used for a study when `--out` is not given.
+pub fn default_dir(study: &Path) -> PathBuf {
+    let stem = study
+        .file_stem()
+        .map(|s| s.to_string_lossy().to_string())
+        .unwrap_or_else(|| "study".into());
+    PathBuf::from("runs").join(stem)
+}
+
+/// Run `stria run`.
+pub fn run(opts: &RunOptions) -> Result<Ended, CliError> {
+    let (mut study, warnings) = Study::load(&opts.study)?;
+    for w in &warnings {
+        eprintln!("{w}");
+    }
+    if let Some(n) = opts.max_evals {
+        if n == 0 {
+            return Err(cmd_err(
+                "--max-evals",
+                "0 evaluations",
+                "a whole number >= 1",
+            ));
+        }
+    }
+    if let Some(h) = opts.hours {
+        if !(h.is_finite() && h > 0.0) {
+            return Err(cmd_err(
+                "--hours",
+                format!("{h} hours"),
+                "a number of hours > 0",
+            ));
+        }
+    }
+    if opts.threads == Some(0) {
+        return Err(cmd_err("--threads", "0 threads", "a whole number >= 1"));
+    }
+    study.set_budget(opts.max_evals, opts.hours);
+    if study.variables.is_empty() {
+        return Err(CliError::input(
+            &opts.study,
+            None,
+            "variables",
+            "a run needs at least one design variable",
+            "[variables.pitch], [variables.open_fraction], [variables.velocity], [variables.cell_pair_voltage], [variables.gap], [variables.length]",
+        ));
+    }
+    let dir = opts.out.clone().unwrap_or_else(|| default_dir(&opts.study));
+    std::fs::create_dir_all(&dir).map_err(|e| io_error("create", &dir, e))?;
+    let rd = RunDir::new(&dir);
+    let problem = StudyProblem { study: &study };
+    let fingerprint = study.fingerprint();
+
+    if opts.fresh {
+        for p in rd.all() {
+            if p.exists() {
+                std::fs::remove_file(&p).map_err(|e| io_error("remove", &p, e))?;
+            }
+        }
+    } else if rd.study().exists() {
+        let text =
+            std::fs::read_to_string(rd.study()).map_err(|e| io_error("read", &rd.study(), e))?;
+        let old = read_fingerprint(&text).unwrap_or_default();
+        if old != fingerprint {
+            return Err(CliError::input(
+                &opts.study,
+                None,
+                "(study)",
+                format!(
+                    "{} holds a run of a different study (fingerprint {old}; this study's is {fingerprint}), so it cannot be resumed with this file",
+                    dir.display()
+                ),
+                "the unchanged study to resume (only optimizer.max_evaluations, hours and stall_generations may change), --fresh to discard that run, or another --out directory",
+            ));
+        }
+    }
+
+    let mut state = if rd.checkpoint().exists() && !opts.fresh {
+        resume(&rd, &study, &fingerprint)?
+    } else {
+        start(&rd, &study, &problem, &fingerprint)?
+    };
+    write_atomic(&rd.study(), study.to_resolved_toml().as_bytes())
+        .map_err(|e| io_error("write", &rd.study(), e))?;
+
+    let stop = Arc::new(AtomicBool::new(false));
+    {
+        let stop = stop.clone();
+        // A second Ctrl-C leaves at once; every file is still whole (atomic writes), and a
+        // resume cuts the rows of the unfinished generation.
+        let _ = ctrlc::set_handler(move || {
+            if stop.swap(true, Ordering::SeqCst) {
+                std::process::exit(130);
+            }
+            eprintln!("\nstopping at the end of this generation (Ctrl-C again to leave at once)");
+        });
+    }
+
+    let threads = opts.threads.unwrap_or_else(rayon::current_num_threads);
+    let pool = rayon::ThreadPoolBuilder::new()
+        .num_threads(threads)
+        .build()
+        .map_err(|e| CliError::Runtime(format!("could not start {threads} worker threads: {e}")))?;
+    eprintln!(
+        "stria run: \"{}\": {} variable(s), {} objective(s), {} constraint(s); {} with seed {}; budget {} evaluations{}; {} thread(s); directory {}",
+        study.name,
+        study.variables.len(),
+        study.objectives.len(),
+        study.constraints.len(),
+        study.optimizer.algorithm.key(),
+        study.optimizer.seed,
+        study.optimizer.max_evaluations,
+        study.optimizer.hours.map(|h| format!(" or {h} h")).unwrap_or_default(),
+        threads,
+        dir.display()
+    );
+    eprintln!("evaluations.csv keeps at most {EVALUATIONS_CSV_CAP} rows; later evaluations count in the summary only");
+    if state.run.evaluations() > 0 {
+        eprintln!(
+            "resuming at generation {} ({} evaluations done)",
+            state.run.generation(),
+            state.run.evaluations()
+        );
+    }
+
+    let started = Instant::now();
+    let deadline = study
+        .optimizer
+        .hours
+        .map(|h| started + Duration::from_secs_f64(h * 3600.0));
+    let mut front_cache: HashMap<u64, Vec<String>> = HashMap::new();
+    let mut progress = progress::Progress::new(&study, state.run.evaluations(), deadline);
+    let ended = pool.install(|| -> Result<Ended, CliError> {
+        loop {
+            if let Some(r) = state.run.finished() {
+                return Ok(Ended::Finished(r));
+            }
+            if stop.load(Ordering::SeqCst) {
+                return Ok(Ended::Paused(StopReason::StopRequested));
+            }
+            if deadline.is_some_and(|d| Instant::now() >= d) {
+                return Ok(Ended::Paused(StopReason::Deadline));
+            }
+            let report = state.run.step(&problem);
+            let elapsed = state.elapsed_before_s + started.elapsed().as_secs_f64();
+            commit(
+                &rd,
+                &study,
+                &mut state,
+                &report,
+                elapsed,
+                &fingerprint,
+                &mut front_cache,
+                None,
+            )?;
+            progress.update(&report, state.run.archive().len());
+        }
+    })?;
+    progress.finish();
+    let elapsed = state.elapsed_before_s + started.elapsed().as_secs_f64();
+    let stop_reason = match ended {
+        Ended::Finished(r) | Ended::Paused(r) => r,
+    };
+    // The final summary (and a front computed with the same cache, unchanged content).
+    write_summary(
+        &rd,
+        &study,
+        &state,
+        elapsed,
+        &fingerprint,
+        Some(stop_reason),
+        matches!(ended, Ended::Finished(_)),
+    )?;
+    match ended {
+        Ended::Finished(r) => eprintln!(
+            "finished ({r}) after {} evaluations in {} generations; {} designs on the front; written to {}",
+            state.run.evaluations(),
+            state.run.generation(),
+            state.run.archive().len(),
+            dir.display()
+        ),
+        Ended::Paused(r) => eprintln!(
+            "paused ({r}) at generation {} after {} evaluations; everything is written.\nresume with: stria run {} --out {}",
+            state.run.generation(),
+            state.run.evaluations(),
+            opts.study.display(),
+            dir.display()
+        ),
+    }
+    Ok(ended)
+}
+
+fn start(
+    rd: &RunDir,
+    study: &Study,
+    problem: &StudyProblem,
+    fingerprint: &str,
+) -> Result<State, CliError> {
+    let run = Run::new(run_config(study), problem).map_err(|e| {
+        CliError::input(
+            &study.file,
+            None,
+            "optimizer",
+            format!("the optimiser cannot run these settings: {e}"),
+            "see docs/study-reference.md, section [optimizer]",
+        )
+    })?;
+    let header = files::evaluations_header(study);
+    write_atomic(&rd.evaluations(), header.as_bytes())
+        .map_err(|e| io_error("write", &rd.evaluations(), e))?;
+    write_atomic(&rd.history(), HISTORY_HEADER.as_bytes())
+        .map_err(|e| io_error("write", &rd.history(), e))?;
+    let mut state = State {
+        run,
+        eval_bytes: header.len() as u64,
+        eval_rows: 0,
+        history_bytes: HISTORY_HEADER.len() as u64,
+        elapsed_before_s: 0.0,
+        cap_noted: false,
+    };
+    write_atomic(&rd.study(), study.to_resolved_toml().as_bytes())
+        .map_err(|e| io_error("write", &rd.study(), e))?;
+    let mut cache = HashMap::new();
+    write_front(rd, study, &state, &mut cache)?;
+    write_summary(rd, study, &state, 0.0, fingerprint, None, false)?;
+    write_checkpoint(rd, &mut state, 0.0, fingerprint)?;
+    Ok(state)
+}
+
+fn resume(rd: &RunDir, study: &Study, fingerprint: &str) -> Result<State, CliError> {
+    let path = rd.checkpoint();
+    let text = std::fs::read_to_string(&path).map_err(|e| io_error("read", &path, e))?;
+    let cp: Checkpoint = serde_json::from_str(&text).map_err(|e| {
+        CliError::Runtime(format!(
+            "{} is damaged ({e}); start afresh with --fresh",
+            path.display()
+        ))
+    })?;
+    if cp.version != CHECKPOINT_VERSION {
+        return Err(CliError::Runtime(format!(
+            "{} has layout version {}, this stria reads {CHECKPOINT_VERSION}; start afresh with --fresh",
+            path.display(),
+            cp.version
+        )));
+    }
+    if cp.fingerprint != fingerprint {
+        return Err(CliError::input(
+            &study.file,
+            None,
+            "(study)",
+            "the checkpoint belongs to a different study",
+            "the unchanged study, or --fresh",
+        ));
+    }
+    // Budget keys may change on resume: patch them into the optimiser's configuration.
+    let mut run_value = cp.run;
+    if let Some(config) = run_value.get_mut("config").and_then(|c| c.as_object_mut()) {
+        config.insert(
+            "max_evaluations".into(),
+            serde_json::json!(study.optimizer.max_evaluations),
+        );
+        config.insert(
+            "stall_generations".into(),
+            serde_json::json!(study.optimizer.stall_generations),
+        );
+    }
+    let run = Run::from_json(&run_value.to_string()).map_err(|e| {
+        CliError::Runtime(format!(
+            "{}: {e}; start afresh with --fresh",
+            path.display()
+        ))
+    })?;
+    for (file, len) in [
+        (rd.evaluations(), cp.evaluations_csv_bytes),
+        (rd.history(), cp.history_csv_bytes),
+    ] {
+        let now = file_len(&file)?;
+        if now < len {
+            return Err(CliError::Runtime(format!(
+                "{} is shorter ({now} bytes) than at the checkpoint ({len} bytes); start afresh with --fresh",
+                file.display()
+            )));
+        }
+        truncate_synced(&file, len).map_err(|e| io_error("truncate", &file, e))?;
+    }
+    Ok(State {
+        run,
+        eval_bytes: cp.evaluations_csv_bytes,
+        eval_rows: cp.evaluations_csv_rows,
+        history_bytes: cp.history_csv_bytes,
+        elapsed_before_s: cp.elapsed_s,
+        cap_noted: cp.evaluations_csv_rows >= EVALUATIONS_CSV_CAP,
+    })
+}
+
+#[allow(clippy::too_many_arguments)]
+fn commit(
+    rd: &RunDir,
+    study: &Study,
+    state: &mut State,
+    report: &StepReport,
+    elapsed: f64,
+    fingerprint: &str,
+    cache: &mut HashMap<u64, Vec<String>>,
+    stop_reason: Option<StopReason>,
+) -> Result<(), CliError> {
+    let mut rows = String::new();
+    for e in &report.new {
+        if state.eval_rows >= EVALUATIONS_CSV_CAP {
+            if !state.cap_noted {
+                eprintln!("evaluations.csv reached its cap of {EVALUATIONS_CSV_CAP} rows; later evaluations are counted in summary.json only");
+                state.cap_noted = true;
+            }
+            break;
+        }
+        rows.push_str(&files::evaluation_row(study, e));
+        state.eval_rows += 1;
+    }
+    if !rows.is_empty() {
+        append_synced(&rd.evaluations(), rows.as_bytes())
+            .map_err(|e| io_error("append to", &rd.evaluations(), e))?;
+        state.eval_bytes += rows.len() as u64;
+    }
+    let line = format!(
+        "{},{},{},{},{:.3}\n",
+        report.generation,
+        report.evaluations,
+        files::num(report.feasible_share),
+        files::num(report.hypervolume),
+        elapsed
+    );
+    append_synced(&rd.history(), line.as_bytes())
+        .map_err(|e| io_error("append to", &rd.history(), e))?;
+    state.history_bytes += line.len() as u64;
+    write_front(rd, study, state, cache)?;
+    write_summary(rd, study, state, elapsed, fingerprint, stop_reason, false)?;
+    write_checkpoint(rd, state, elapsed, fingerprint)
+}
+
+fn write_front(
+    rd: &RunDir,
+    study: &Study,
+    state: &State,
+    cache: &mut HashMap<u64, Vec<String>>,
+) -> Result<(), CliError> {
+    let text = files::front_csv(study, state.run.archive().members(), cache);
+    write_atomic(&rd.front(), text.as_bytes()).map_err(|e| io_error("write", &rd.front(), e))
+}
+
+fn write_checkpoint(
+    rd: &RunDir,
+    state: &mut State,
+    elapsed: f64,
+    fingerprint: &str,
+) -> Result<(), CliError> {
+    let run: serde_json::Value = serde_json::from_str(&state.run.to_json())
+        .map_err(|e| CliError::Runtime(format!("optimiser state: {e}")))?;
+    let cp = Checkpoint {
+        version: CHECKPOINT_VERSION,
+        fingerprint: fingerprint.to_string(),
+        evaluations_csv_bytes: state.eval_bytes,
+        evaluations_csv_rows: state.eval_rows,
+        history_csv_bytes: state.history_bytes,
+        elapsed_s: elapsed,
+        run,
+    };
+    let text =
+        serde_json::to_string(&cp).map_err(|e| CliError::Runtime(format!("checkpoint: {e}")))?;
+    write_atomic(&rd.checkpoint(), text.as_bytes())
+        .map_err(|e| io_error("write", &rd.checkpoint(), e))
+}
+
+fn write_summary(
+    rd: &RunDir,
+    study: &Study,
+    state: &State,
+    elapsed: f64,
+    fingerprint: &str,
+    stop_reason: Option<StopReason>,
+    finished: bool,
+) -> Result<(), CliError> {
+    let objectives: Vec<serde_json::Value> = study
+        .objectives
+        .iter()
+        .map(|o| serde_json::json!({"key": o.key(), "column": o.column(), "unit": o.unit(), "direction": o.direction()}))
+        .collect();
+    let variables: Vec<serde_json::Value> = study
+        .variables
+        .iter()
+        .map(|v| serde_json::json!({"key": v.kind.column(), "unit": v.kind.unit(), "lower": v.lower, "upper": v.upper}))
+        .collect();
+    let constraints: Vec<serde_json::Value> = study
+        .constraints
+        .iter()
+        .map(|c| serde_json::json!({"key": c.key(), "column": c.column(), "limit_si": c.limit()}))
+        .collect();
+    let summary = serde_json::json!({
+        "study": study.name,
+        "fingerprint": fingerprint,
+        "algorithm": study.optimizer.algorithm.key(),
+        "seed": study.optimizer.seed,
+        "evaluations": state.run.evaluations(),
+        "generations": state.run.generation(),
+        "stop_reason": stop_reason.map(|r| r.to_string()),
+        "front_size": state.run.archive().len(),
+        "objectives": objectives,
+        "variables": variables,
+        "constraints": constraints,
+        "currency": study.currency,
+        "evaluations_csv_cap": EVALUATIONS_CSV_CAP,
+        "evaluations_csv_rows": state.eval_rows,
+        "hypervolume": state.run.hv_history().last().copied().unwrap_or(0.0),
+        "hv_reference": state.run.hv_reference(),
+        "elapsed_s": elapsed,
+        "finished": finished,
+    });
+    let text = serde_json::to_string_pretty(&summary)
+        .map_err(|e| CliError::Runtime(format!("summary: {e}")))?;
+    write_atomic(&rd.summary(), text.as_bytes()).map_err(|e| io_error("write", &rd.summary(), e))
+}

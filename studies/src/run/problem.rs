@@ -1,0 +1,93 @@
+//! The study as an optimisation problem, and the optimiser configuration it asks for.
+
+use optimizer::{
+    Algorithm, InitialDesign, Nsga2Config, Outcome, Problem, RunConfig, Scalarisation,
+    ScalarisedConfig, ScreeningConfig, Solver, Variable,
+};
+
+use crate::study::{AlgorithmChoice, Study};
+
+/// A study seen by the optimiser: variables in SI, objectives minimised (maximised ones
+/// negated), constraints normalised (g <= 0 feasible).
+pub struct StudyProblem<'a> {
+    /// The study.
+    pub study: &'a Study,
+}
+
+impl Problem for StudyProblem<'_> {
+    fn variables(&self) -> Vec<Variable> {
+        self.study
+            .variables
+            .iter()
+            .map(|v| Variable::new(v.kind.column(), v.lower, v.upper))
+            .collect()
+    }
+
+    fn num_objectives(&self) -> usize {
+        self.study.objectives.len()
+    }
+
+    fn num_constraints(&self) -> usize {
+        self.study.constraints.len()
+    }
+
+    fn evaluate(&self, x: &[f64]) -> Result<Outcome, String> {
+        let (eval, natural) = self.study.evaluate_point(x)?;
+        let objectives = self
+            .study
+            .objectives
+            .iter()
+            .zip(&natural)
+            .map(|(o, v)| o.to_minimised(*v))
+            .collect();
+        let constraints = self.study.constraints.iter().map(|c| c.g(&eval)).collect();
+        Ok(Outcome {
+            objectives,
+            constraints,
+        })
+    }
+}
+
+/// The optimiser configuration of a study.
+pub fn run_config(study: &Study) -> RunConfig {
+    let o = &study.optimizer;
+    let algorithm = match o.algorithm {
+        AlgorithmChoice::Nsga2 => Algorithm::Nsga2(Nsga2Config {
+            population_size: o.population,
+            ..Nsga2Config::default()
+        }),
+        AlgorithmChoice::Scalarised => {
+            let scalarisation = match o.scalarisation.as_str() {
+                "weighted_sum" => Scalarisation::WeightedSum,
+                "chebyshev" => Scalarisation::Chebyshev,
+                _ => Scalarisation::EpsilonConstraint { objective: 0 },
+            };
+            let solver = match o.solver.as_str() {
+                "nelder_mead" => Solver::NelderMead,
+                "particle_swarm" => Solver::ParticleSwarm,
+                _ => Solver::SimulatedAnnealing,
+            };
+            let rest = o.max_evaluations.saturating_sub(o.population as u64);
+            Algorithm::Scalarised(ScalarisedConfig {
+                scalarisation,
+                solver,
+                subproblems: o.subproblems,
+                evaluations_per_subproblem: (rest / o.subproblems.max(1) as u64).max(1),
+                initial_samples: o.population.max(2),
+            })
+        }
+        AlgorithmChoice::Screening => Algorithm::Screening(ScreeningConfig {
+            design: if o.sampler == "sobol" {
+                InitialDesign::Sobol
+            } else {
+                InitialDesign::LatinHypercube
+            },
+            points: o.max_evaluations.min(usize::MAX as u64) as usize,
+            batch_size: o.population,
+        }),
+    };
+    let mut config = RunConfig::new(algorithm, o.seed, o.max_evaluations);
+    config.archive_epsilon = o.archive_epsilon.clone();
+    config.stall_generations = o.stall_generations;
+    config
+}
