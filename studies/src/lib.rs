@@ -9,6 +9,9 @@
 pub mod check;
 pub mod error;
 pub mod eval;
+pub mod fit;
 pub mod fsio;
+pub mod handoff;
+pub mod report;
 pub mod run;
 pub mod study;

@@ -117,9 +117,14 @@ fn dispatch(cli: Cli) -> Result<(), CliError> {
             fresh,
         })
         .map(|_| ()),
-        Command::Report { .. } | Command::Handoff { .. } | Command::Fit { .. } => {
-            Err(CliError::Runtime("this command is not yet built".into()))
-        }
+        Command::Report { dir } => studies::report::run(&dir),
+        Command::Handoff { dir, picks, out } => studies::handoff::run(&dir, &picks, out.as_deref()),
+        Command::Fit {
+            data,
+            study,
+            fit,
+            out,
+        } => studies::fit::run(&data, &study, &fit, out.as_deref()),
         Command::Keys => {
             print!("{}", studies::study::keys::reference_markdown());
             Ok(())
