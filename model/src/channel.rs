@@ -290,6 +290,9 @@ fn integrate_once(
     let (mut k0, _) = rhs.eval(s, &y);
     let mut h: f64 = 0.1;
     let atol0 = rel_tol * 1e-6 * streams.c_d_in;
+    // Current per width that would remove all the salt at full efficiency, A/m: the scale
+    // of the current integral, whose absolute error is held to 1 % of rel_tol of it.
+    let current_scale = streams.c_d_in * rhs.flux / cell.xi0;
     let mut steps = 0u32;
     let (mut max_v_cem, mut max_v_aem, mut max_ws) = (0.0f64, 0.0f64, 0.0f64);
     let mut end_s = 1.0;
@@ -303,7 +306,7 @@ fn integrate_once(
         h = h.min(1.0 - s);
         let (y_new, k_new, err, sol) = dp_step(&mut rhs, s, &y, &k0, h);
         let sc0 = atol0 + rel_tol * y[0].abs().max(y_new[0].abs());
-        let sc1 = rel_tol * (1e-9 + y[1].abs().max(y_new[1].abs()));
+        let sc1 = rel_tol * (1e-2 * current_scale + y[1].abs().max(y_new[1].abs()));
         let en = (err[0].abs() / sc0).max(err[1].abs() / sc1);
         if !en.is_finite() || y_new.iter().any(|v| !v.is_finite()) {
             if h < 1e-12 {

@@ -248,13 +248,24 @@ impl Layer {
     /// integral_{v_c}^{v} alpha(w) dw (closed form), for v > v_c.
     #[inline]
     fn alpha_integral(&self, v: f64) -> f64 {
+        if self.amp == 0.0 {
+            return self.a0 * (v - self.v_c);
+        }
+        self.alpha_and_integral(v).1
+    }
+
+    /// (alpha(v), integral_{v_c}^{v} alpha dw) sharing one logarithm, for v > v_c.
+    #[inline]
+    fn alpha_and_integral(&self, v: f64) -> (f64, f64) {
         let base = self.a0 * (v - self.v_c);
         if self.amp == 0.0 {
-            return base;
+            return (self.a0, base);
         }
-        let b = (self.q * (v / self.v_c).ln() - self.z0 - self.sigma * self.sigma / self.q)
-            / (self.sigma * std::f64::consts::SQRT_2);
-        base + self.amp * self.j_pref * erf_diff(self.b_c, b)
+        let s = (v / self.v_c).ln();
+        let z = self.z0 - self.q * s;
+        let alpha = self.a0 + self.amp * (-z * z / (2.0 * self.sigma * self.sigma)).exp();
+        let b = (-z - self.sigma * self.sigma / self.q) / (self.sigma * std::f64::consts::SQRT_2);
+        (alpha, base + self.amp * self.j_pref * erf_diff(self.b_c, b))
     }
 
     /// Overlimiting (electroconvective) current density at `v`, A/m^2 (0 at or below onset).
@@ -278,8 +289,7 @@ impl Layer {
         let mut i = self.i_het * (1.0 - e);
         let mut di = 0.5 * self.i_het * e;
         if v > self.v_c {
-            let alpha = self.alpha(v);
-            let i1 = self.alpha_integral(v);
+            let (alpha, i1) = self.alpha_and_integral(v);
             if self.n == 1.0 {
                 i += self.gain * i1;
                 di += self.gain * alpha;
@@ -311,6 +321,28 @@ impl Layer {
         let slope = self.gain * a_min;
         if slope <= 0.0 {
             return (f64::INFINITY, 0.0);
+        }
+        if self.amp == 0.0 && self.n == 1.0 {
+            // Unpatterned, n = 1: i = i_het (1 - e^(-v/2)) + slope (v - v_c), v > v_c.
+            // Newton from the estimate that freezes e^(-v/2) at the guess; the iteration map
+            // is a contraction (e^(-v/2) <= e^(-v_c/2)), and each iterate is kept inside
+            // [v_c, v_c + (i - i_onset)/slope], where the root lies.
+            let hi = self.v_c + (i - self.i_onset) / slope;
+            let vg = guess.clamp(self.v_c, hi);
+            let mut v = (self.v_c + (i - self.i_het * (1.0 - (-0.5 * vg).exp())) / slope)
+                .clamp(self.v_c, hi);
+            for _ in 0..50 {
+                let e = (-0.5 * v).exp();
+                let f = self.i_het * (1.0 - e) + slope * (v - self.v_c) - i;
+                let d = 0.5 * self.i_het * e + slope;
+                let next = (v - f / d).clamp(self.v_c, hi);
+                let step = (next - v).abs();
+                v = next;
+                if step <= 1e-12 * (1.0 + v) {
+                    return (v, 0.5 * self.i_het * (-0.5 * v).exp() + slope);
+                }
+            }
+            return (v, 0.5 * self.i_het * (-0.5 * v).exp() + slope);
         }
         let v_hi = self.v_c + ((i - self.i_onset) / slope).powf(1.0 / self.n) * 1.000_001 + 1e-9;
         let (v, _) = newton_bracketed(
