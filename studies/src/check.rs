@@ -41,7 +41,10 @@ pub fn bound_warnings(study: &Study) -> Vec<String> {
                         seen.push(key);
                         out.push(format!(
                             "at {label}: {} = {} (bound {}): {}",
-                            w.quantity, w.value, w.bound, w.message
+                            w.quantity,
+                            crate::eval::sig(w.value, 4),
+                            crate::eval::sig(w.bound, 4),
+                            w.message
                         ));
                     }
                 }

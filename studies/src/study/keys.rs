@@ -82,7 +82,16 @@ impl Range {
     pub fn describe(&self) -> String {
         let lo = if self.lo_open { ">" } else { ">=" };
         let hi = if self.hi_open { "<" } else { "<=" };
-        format!("{lo} {} and {hi} {}", self.lo, self.hi)
+        format!("{lo} {} and {hi} {}", bound(self.lo), bound(self.hi))
+    }
+}
+
+/// A bound for messages: exponent form for very small or large magnitudes.
+fn bound(x: f64) -> String {
+    if x != 0.0 && (x.abs() < 1e-3 || x.abs() >= 1e7) {
+        format!("{x:e}")
+    } else {
+        format!("{x}")
     }
 }
 
@@ -414,4 +423,79 @@ pub fn reference_markdown() -> String {
          value of the study.\n",
     );
     out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// docs/study-reference.md is generated from this table; regenerate it with
+    /// `STRIA_BLESS=1 cargo test -p studies reference` (or `stria keys > docs/study-reference.md`).
+    #[test]
+    fn reference_doc_matches_the_key_table() {
+        let path =
+            std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("../docs/study-reference.md");
+        let want = reference_markdown();
+        if std::env::var_os("STRIA_BLESS").is_some() {
+            std::fs::write(&path, &want).unwrap();
+        }
+        let have = std::fs::read_to_string(&path).unwrap_or_default();
+        assert!(
+            have == want,
+            "docs/study-reference.md is out of date: run `stria keys > docs/study-reference.md`"
+        );
+    }
+
+    #[test]
+    fn table_is_consistent() {
+        for s in KEYS {
+            assert!(
+                SECTIONS.iter().any(|(name, _)| *name == s.section),
+                "{}.{} has no section",
+                s.section,
+                s.key
+            );
+            assert_eq!(
+                KEYS.iter()
+                    .filter(|o| o.section == s.section && o.key == s.key)
+                    .count(),
+                1,
+                "{}.{} twice",
+                s.section,
+                s.key
+            );
+            if let DefaultValue::Value(lit) = s.default {
+                let v: toml_edit::Value = lit.parse().unwrap();
+                match s.kind {
+                    Kind::Choice(words) => assert!(words.contains(&v.as_str().unwrap())),
+                    Kind::Float | Kind::Int => {
+                        let x = v.as_float().or(v.as_integer().map(|i| i as f64)).unwrap();
+                        if let Some(r) = s.range {
+                            assert!(
+                                r.contains(x),
+                                "default of {}.{} out of range",
+                                s.section,
+                                s.key
+                            );
+                        }
+                    }
+                    _ => {}
+                }
+            }
+        }
+        // The unit in a dimensional key matches its unit column.
+        for s in KEYS.iter().filter(|s| s.to_si != 1.0) {
+            let suffix = s.key.rsplit('_').next().unwrap();
+            assert!(!suffix.is_empty(), "{}", s.key);
+        }
+    }
+
+    #[test]
+    fn close_typos_are_suggested_and_far_words_are_not() {
+        assert_eq!(
+            closest("pitch_mu", ["pitch_um", "open_fraction"]),
+            Some("pitch_um")
+        );
+        assert_eq!(closest("zzz", ["pitch_um", "open_fraction"]), None);
+    }
 }

@@ -1,0 +1,537 @@
+//! The `stria` binary end to end: bad input (exit 2, file/line/field named, no panic), the
+//! demos, the JSON schema of `eval`, and runs that are killed and resumed.
+
+use std::path::{Path, PathBuf};
+use std::process::{Command, Output, Stdio};
+use std::time::Duration;
+
+use rand::{Rng, SeedableRng};
+use rand_chacha::ChaCha8Rng;
+
+fn stria(args: &[&str]) -> Output {
+    Command::new(env!("CARGO_BIN_EXE_stria"))
+        .args(args)
+        .stdin(Stdio::null())
+        .output()
+        .expect("stria runs")
+}
+
+fn demo(name: &str) -> PathBuf {
+    Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("demo")
+        .join(name)
+}
+
+/// The quick demo with text replacements (each must match), written into `dir`.
+fn study_with(dir: &Path, name: &str, edits: &[(&str, &str)]) -> PathBuf {
+    let mut text = std::fs::read_to_string(demo("quick.toml")).unwrap();
+    for (from, to) in edits {
+        assert!(text.contains(from), "the demo has no `{from}`");
+        text = text.replacen(from, to, 1);
+    }
+    let path = dir.join(name);
+    std::fs::write(&path, text).unwrap();
+    path
+}
+
+fn line_of(path: &Path, needle: &str) -> usize {
+    let text = std::fs::read_to_string(path).unwrap();
+    text.lines().position(|l| l.contains(needle)).unwrap() + 1
+}
+
+fn stderr(o: &Output) -> String {
+    String::from_utf8_lossy(&o.stderr).into_owned()
+}
+
+/// A bad-input run: exit 2, one message naming the file, the line and the field, no panic.
+fn assert_bad(o: &Output, file: &str, line: Option<usize>, field: &str, also: &str) {
+    let err = stderr(o);
+    assert_eq!(o.status.code(), Some(2), "exit code; stderr:\n{err}");
+    assert!(
+        !err.contains("panicked") && !err.contains("backtrace"),
+        "{err}"
+    );
+    assert!(err.contains(file), "no file `{file}` in:\n{err}");
+    if let Some(l) = line {
+        assert!(err.contains(&format!(":{l}:")), "no line {l} in:\n{err}");
+    }
+    assert!(err.contains(field), "no field `{field}` in:\n{err}");
+    assert!(err.contains(also), "no `{also}` in:\n{err}");
+    assert!(err.contains("allowed"), "no allowed values in:\n{err}");
+}
+
+#[test]
+fn unknown_key_is_named_with_a_suggestion() {
+    let dir = tempfile::tempdir().unwrap();
+    let p = study_with(dir.path(), "typo.toml", &[("gap_mm = 0.5", "gap_nm = 0.5")]);
+    let line = line_of(&p, "gap_nm");
+    let o = stria(&["check", p.to_str().unwrap()]);
+    assert_bad(
+        &o,
+        "typo.toml",
+        Some(line),
+        "channel.gap_nm",
+        "did you mean `gap_mm`",
+    );
+}
+
+#[test]
+fn out_of_range_value_gives_the_allowed_range() {
+    let dir = tempfile::tempdir().unwrap();
+    let p = study_with(
+        dir.path(),
+        "range.toml",
+        &[("open_fraction = 0.5", "open_fraction = 1.5")],
+    );
+    let line = line_of(&p, "open_fraction = 1.5");
+    let o = stria(&["check", p.to_str().unwrap()]);
+    assert_bad(
+        &o,
+        "range.toml",
+        Some(line),
+        "membranes.open_fraction",
+        "out of range",
+    );
+    assert!(stderr(&o).contains("<= 1"), "{}", stderr(&o));
+}
+
+#[test]
+fn key_without_its_unit_is_refused() {
+    let dir = tempfile::tempdir().unwrap();
+    let p = study_with(
+        dir.path(),
+        "unit.toml",
+        &[("velocity_cm_s = 4.0", "velocity = 4.0")],
+    );
+    let line = line_of(&p, "velocity = 4.0");
+    let o = stria(&["eval", p.to_str().unwrap()]);
+    assert_bad(
+        &o,
+        "unit.toml",
+        Some(line),
+        "operation.velocity",
+        "velocity_cm_s",
+    );
+}
+
+#[test]
+fn wrong_type_is_refused() {
+    let dir = tempfile::tempdir().unwrap();
+    let p = study_with(
+        dir.path(),
+        "type.toml",
+        &[("pitch_um = 120.0", "pitch_um = \"fine\"")],
+    );
+    let line = line_of(&p, "pitch_um = \"fine\"");
+    let o = stria(&["check", p.to_str().unwrap()]);
+    assert_bad(
+        &o,
+        "type.toml",
+        Some(line),
+        "membranes.pitch_um",
+        "expected a number",
+    );
+}
+
+#[test]
+fn missing_key_and_bad_choice_are_refused() {
+    let dir = tempfile::tempdir().unwrap();
+    let p = study_with(dir.path(), "missing.toml", &[("width_m = 0.20", "")]);
+    let o = stria(&["check", p.to_str().unwrap()]);
+    assert_bad(&o, "missing.toml", None, "channel.width_m", "missing");
+    let p = study_with(
+        dir.path(),
+        "choice.toml",
+        &[("salt = \"NaCl\"", "salt = \"NaCL\"")],
+    );
+    let line = line_of(&p, "NaCL");
+    let o = stria(&["check", p.to_str().unwrap()]);
+    assert_bad(
+        &o,
+        "choice.toml",
+        Some(line),
+        "water.salt",
+        "did you mean \"NaCl\"",
+    );
+}
+
+#[test]
+fn syntax_error_names_its_line() {
+    let dir = tempfile::tempdir().unwrap();
+    let p = study_with(
+        dir.path(),
+        "syntax.toml",
+        &[("length_m = 0.45", "length_m = = 0.45")],
+    );
+    let line = line_of(&p, "length_m = =");
+    let o = stria(&["check", p.to_str().unwrap()]);
+    assert_bad(&o, "syntax.toml", Some(line), "(syntax)", "TOML");
+}
+
+#[test]
+fn bad_set_options_are_refused() {
+    let q = demo("quick.toml");
+    let q = q.to_str().unwrap();
+    let o = stria(&["eval", q, "--set", "membranes.pich_um=80"]);
+    assert_bad(
+        &o,
+        "command line",
+        None,
+        "membranes.pich_um",
+        "did you mean `pitch_um`",
+    );
+    let o = stria(&["eval", q, "--set", "membranes.pitch_um=wide"]);
+    assert_bad(
+        &o,
+        "command line",
+        None,
+        "membranes.pitch_um",
+        "expected a number",
+    );
+    let o = stria(&["eval", q, "--set", "membranes.pitch_um"]);
+    assert_bad(&o, "command line", None, "--set", "section.key=value");
+    let o = stria(&["eval", q, "--set", "channel.gap_mm=0"]);
+    assert_bad(&o, "command line", None, "channel.gap_mm", "out of range");
+}
+
+#[test]
+fn missing_study_file_and_bad_options_exit_2() {
+    let o = stria(&["check", "/nonexistent/study.toml"]);
+    assert_bad(&o, "/nonexistent/study.toml", None, "(file)", "cannot read");
+    let o = stria(&[
+        "run",
+        demo("quick.toml").to_str().unwrap(),
+        "--threads",
+        "lots",
+    ]);
+    assert_eq!(o.status.code(), Some(2));
+    let o = stria(&["frobnicate"]);
+    assert_eq!(o.status.code(), Some(2));
+}
+
+#[test]
+fn demos_check_clean() {
+    for name in ["quick.toml", "overnight.toml", "screening.toml"] {
+        let o = stria(&["check", demo(name).to_str().unwrap()]);
+        let err = stderr(&o);
+        assert_eq!(o.status.code(), Some(0), "{name}: {err}");
+        assert!(
+            !err.lines().any(|l| l.starts_with("warning:")),
+            "{name}: {err}"
+        );
+        assert!(err.contains("valid study"), "{err}");
+        // The resolved study is itself a valid study with the same fingerprint.
+        let dir = tempfile::tempdir().unwrap();
+        let resolved = dir.path().join("resolved.toml");
+        std::fs::write(&resolved, &o.stdout).unwrap();
+        let again = stria(&["check", resolved.to_str().unwrap()]);
+        assert_eq!(again.status.code(), Some(0), "{}", stderr(&again));
+        let first = String::from_utf8_lossy(&o.stdout)
+            .lines()
+            .next()
+            .unwrap()
+            .to_string();
+        let second = String::from_utf8_lossy(&again.stdout)
+            .lines()
+            .next()
+            .unwrap()
+            .to_string();
+        assert_eq!(first, second, "{name}: fingerprint changes on reload");
+    }
+}
+
+/// The field list of `stria eval --json` in studies.md.
+const SCHEMA: &[(&str, &[&str])] = &[
+    (
+        "inputs",
+        &[
+            "salt",
+            "temperature_K",
+            "feed_concentration_mol_m3",
+            "gap_m",
+            "length_m",
+            "width_m",
+            "velocity_m_s",
+            "spacer",
+            "pitch_m",
+            "open_fraction",
+            "cell_pair_voltage_V",
+            "cem_transport_number",
+            "aem_transport_number",
+        ],
+    ),
+    (
+        "properties",
+        &[
+            "salt_diffusivity_m2_s",
+            "cation_transport_number",
+            "density_kg_m3",
+            "dynamic_viscosity_Pa_s",
+            "kinematic_viscosity_m2_s",
+            "conductivity_S_m",
+            "debye_length_m",
+            "thermal_voltage_V",
+        ],
+    ),
+    (
+        "hydraulics",
+        &[
+            "hydraulic_diameter_m",
+            "reynolds",
+            "schmidt",
+            "pressure_drop_Pa",
+        ],
+    ),
+    (
+        "transfer",
+        &[
+            "sherwood_mean",
+            "boundary_layer_thickness_mean_m",
+            "limiting_current_density_feed_A_m2",
+            "limiting_membrane",
+        ],
+    ),
+    (
+        "performance",
+        &[
+            "outlet_concentration_mol_m3",
+            "concentrate_outlet_concentration_mol_m3",
+            "water_recovery",
+            "salt_removal_fraction",
+            "mean_current_density_A_m2",
+            "cell_current_A",
+            "diluate_flow_m3_s",
+            "current_efficiency",
+            "electrical_energy_kWh_m3",
+            "pumping_energy_kWh_m3",
+            "specific_energy_kWh_m3",
+            "thermodynamic_minimum_kWh_m3",
+            "active_area_fraction",
+            "vortex_wavelength_m",
+        ],
+    ),
+];
+
+#[test]
+fn eval_json_has_the_schema_fields() {
+    let o = stria(&[
+        "eval",
+        demo("quick.toml").to_str().unwrap(),
+        "--json",
+        "--set",
+        "membranes.pitch_um=80",
+    ]);
+    assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    for (group, fields) in SCHEMA {
+        let g = v.get(group).unwrap_or_else(|| panic!("no group {group}"));
+        for f in *fields {
+            assert!(g.get(f).is_some(), "no {group}.{f}");
+        }
+    }
+    assert!(v["warnings"].is_array());
+    assert_eq!(v["inputs"]["salt"], "NaCl");
+    assert_eq!(v["inputs"]["spacer"], "none");
+    // --set took effect, converted from um to SI.
+    approx::assert_relative_eq!(
+        v["inputs"]["pitch_m"].as_f64().unwrap(),
+        80e-6,
+        max_relative = 1e-12
+    );
+    // 2.4 g/L NaCl (58.44 g/mol) = 41.07 mol/m3.
+    approx::assert_relative_eq!(
+        v["inputs"]["feed_concentration_mol_m3"].as_f64().unwrap(),
+        2.4 / 58.44 * 1000.0,
+        max_relative = 1e-12
+    );
+    let sheet = stria(&["eval", demo("quick.toml").to_str().unwrap(), "--profile"]);
+    let text = String::from_utf8_lossy(&sheet.stdout);
+    for heading in [
+        "Inputs",
+        "Properties",
+        "Hydraulics",
+        "Mass transfer",
+        "Performance",
+        "Economics",
+        "Warnings",
+        "Profiles",
+        "screening model",
+    ] {
+        assert!(text.contains(heading), "sheet lacks {heading}");
+    }
+}
+
+fn small_study(dir: &Path, name: &str, evals: u64) -> PathBuf {
+    study_with(
+        dir,
+        name,
+        &[
+            ("population = 40", "population = 16"),
+            (
+                "max_evaluations = 4000",
+                &format!("max_evaluations = {evals}"),
+            ),
+        ],
+    )
+}
+
+fn run_to_end(study: &Path, out: &Path, extra: &[&str]) {
+    let mut args = vec![
+        "run",
+        study.to_str().unwrap(),
+        "--out",
+        out.to_str().unwrap(),
+    ];
+    args.extend_from_slice(extra);
+    let o = stria(&args);
+    assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
+}
+
+fn read(p: &Path) -> Vec<u8> {
+    std::fs::read(p).unwrap()
+}
+
+#[test]
+fn killed_runs_resume_to_the_uninterrupted_result() {
+    let dir = tempfile::tempdir().unwrap();
+    let study = small_study(dir.path(), "s.toml", 480);
+    let whole = dir.path().join("whole");
+    run_to_end(&study, &whole, &["--threads", "2"]);
+
+    let broken = dir.path().join("broken");
+    let mut rng = ChaCha8Rng::seed_from_u64(20261202);
+    let mut kills = 0;
+    for _ in 0..6 {
+        let mut child = Command::new(env!("CARGO_BIN_EXE_stria"))
+            .args([
+                "run",
+                study.to_str().unwrap(),
+                "--out",
+                broken.to_str().unwrap(),
+                "--threads",
+                "2",
+            ])
+            .stdin(Stdio::null())
+            .stdout(Stdio::null())
+            .stderr(Stdio::null())
+            .spawn()
+            .unwrap();
+        std::thread::sleep(Duration::from_millis(rng.random_range(20..250)));
+        if child.try_wait().unwrap().is_none() {
+            child.kill().unwrap(); // SIGKILL on Unix
+            kills += 1;
+        }
+        child.wait().unwrap();
+    }
+    run_to_end(&study, &broken, &["--threads", "2"]);
+    assert!(kills > 0, "no run was interrupted; the test proves nothing");
+    for f in ["front.csv", "evaluations.csv"] {
+        assert!(
+            read(&whole.join(f)) == read(&broken.join(f)),
+            "{f} differs after {kills} kills"
+        );
+    }
+    let summary: serde_json::Value =
+        serde_json::from_slice(&read(&broken.join("summary.json"))).unwrap();
+    assert_eq!(summary["evaluations"], 480);
+    assert_eq!(summary["finished"], true);
+}
+
+#[test]
+fn same_result_with_one_and_two_threads() {
+    let dir = tempfile::tempdir().unwrap();
+    let study = small_study(dir.path(), "s.toml", 320);
+    let (a, b) = (dir.path().join("t1"), dir.path().join("t2"));
+    run_to_end(&study, &a, &["--threads", "1"]);
+    run_to_end(&study, &b, &["--threads", "2"]);
+    for f in ["front.csv", "evaluations.csv"] {
+        assert!(read(&a.join(f)) == read(&b.join(f)), "{f} differs");
+    }
+}
+
+#[test]
+fn resuming_with_a_changed_study_is_refused_unless_fresh() {
+    let dir = tempfile::tempdir().unwrap();
+    let study = small_study(dir.path(), "s.toml", 64);
+    let out = dir.path().join("run");
+    run_to_end(&study, &out, &[]);
+    // A raised budget is not a change of study: the run goes on.
+    run_to_end(&study, &out, &["--max-evals", "96"]);
+    let summary: serde_json::Value =
+        serde_json::from_slice(&read(&out.join("summary.json"))).unwrap();
+    assert_eq!(summary["evaluations"], 96);
+
+    let changed = std::fs::read_to_string(&study)
+        .unwrap()
+        .replace("upper_um = 600.0", "upper_um = 500.0");
+    std::fs::write(&study, changed).unwrap();
+    let o = stria(&[
+        "run",
+        study.to_str().unwrap(),
+        "--out",
+        out.to_str().unwrap(),
+    ]);
+    let err = stderr(&o);
+    assert_eq!(o.status.code(), Some(2), "{err}");
+    assert!(
+        err.contains("different study") && err.contains("--fresh"),
+        "{err}"
+    );
+    run_to_end(&study, &out, &["--fresh"]);
+    let resolved = std::fs::read_to_string(out.join("study.toml")).unwrap();
+    assert!(resolved.starts_with("# fingerprint: "));
+    assert!(resolved.contains("upper_um = 500.0"));
+}
+
+#[test]
+fn run_directory_has_the_contract_columns() {
+    let dir = tempfile::tempdir().unwrap();
+    let study = small_study(dir.path(), "s.toml", 32);
+    let out = dir.path().join("run");
+    run_to_end(&study, &out, &[]);
+    let head = |f: &str| {
+        String::from_utf8(read(&out.join(f)))
+            .unwrap()
+            .lines()
+            .next()
+            .unwrap()
+            .to_string()
+    };
+    assert_eq!(
+        head("evaluations.csv"),
+        "id,generation,pitch_m,open_fraction,velocity_m_s,salt_removal_rate_mol_m2_s,specific_energy_kWh_m3,g_product_concentration,g_pressure_drop,g_reynolds,feasible,reason"
+    );
+    assert_eq!(
+        head("front.csv"),
+        "id,pitch_m,open_fraction,velocity_m_s,salt_removal_rate_mol_m2_s,specific_energy_kWh_m3,outlet_concentration_mol_m3,salt_removal_fraction,mean_current_density_A_m2,active_area_fraction,vortex_wavelength_m,pitch_over_wavelength,boundary_layer_thickness_mean_m"
+    );
+    assert_eq!(
+        head("history.csv"),
+        "generation,evaluations,feasible_share,hypervolume,elapsed_s"
+    );
+    let s: serde_json::Value = serde_json::from_slice(&read(&out.join("summary.json"))).unwrap();
+    for key in [
+        "study",
+        "fingerprint",
+        "algorithm",
+        "seed",
+        "evaluations",
+        "generations",
+        "stop_reason",
+        "front_size",
+        "objectives",
+        "variables",
+        "evaluations_csv_cap",
+        "finished",
+    ] {
+        assert!(s.get(key).is_some(), "summary.json lacks {key}");
+    }
+    assert_eq!(s["objectives"][0]["direction"], "max");
+    assert_eq!(s["objectives"][1]["direction"], "min");
+    // Rows of evaluations.csv: one per evaluation.
+    let rows = String::from_utf8(read(&out.join("evaluations.csv")))
+        .unwrap()
+        .lines()
+        .count();
+    assert_eq!(rows, 33);
+}
