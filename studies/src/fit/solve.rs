@@ -1,10 +1,9 @@
-//! The least-squares fit: Nelder-Mead (argmin) on bounded parameters through a logistic map,
+//! The least-squares fit: Nelder-Mead through the optimizer crate's argmin adapter
+//! ([`optimizer::minimize_from`], bounded), in ln(p) for constants whose bounds span decades,
 //! from several seeded starts; uncertainty from the Gauss-Newton approximation of the cost's
 //! curvature, sigma^2 = SSR / (N - p) (J^T J)^-1 (Bates and Watts, Nonlinear Regression
 //! Analysis, 1988, ch. 2).
 
-use argmin::core::{CostFunction, Executor};
-use argmin::solver::neldermead::NelderMead;
 use model::RomConstants;
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
@@ -139,26 +138,39 @@ pub struct FitResult {
 #[derive(Debug, Clone, PartialEq)]
 pub struct Refusal(pub String);
 
-fn logistic(z: f64) -> f64 {
-    1.0 / (1.0 + (-z).exp())
+/// Bounds spanning more than a decade and a half are searched in ln(p), others in p.
+fn logarithmic(b: &Bound) -> bool {
+    b.lower > 0.0 && b.upper / b.lower > 20.0
 }
 
 fn to_physical(z: &[f64], b: &[Bound]) -> Vec<f64> {
     z.iter()
         .zip(b)
-        .map(|(z, b)| b.lower + (b.upper - b.lower) * logistic(*z))
+        .map(|(z, b)| if logarithmic(b) { z.exp() } else { *z })
         .collect()
 }
 
-fn to_unbounded(p: &[f64], b: &[Bound]) -> Vec<f64> {
+fn to_search(p: &[f64], b: &[Bound]) -> Vec<f64> {
     p.iter()
         .zip(b)
-        .map(|(p, b)| {
-            let t = ((p - b.lower) / (b.upper - b.lower)).clamp(1e-6, 1.0 - 1e-6);
-            (t / (1.0 - t)).ln()
+        .map(|(p, b)| if logarithmic(b) { p.ln() } else { *p })
+        .collect()
+}
+
+fn search_bounds(b: &[Bound]) -> Vec<(f64, f64)> {
+    b.iter()
+        .map(|b| {
+            if logarithmic(b) {
+                (b.lower.ln(), b.upper.ln())
+            } else {
+                (b.lower, b.upper)
+            }
         })
         .collect()
 }
+
+/// Evaluations allowed to each start of the Nelder-Mead search.
+pub const BUDGET_PER_START: u64 = 1500;
 
 struct Cost<'a, F> {
     base: RomConstants,
@@ -193,33 +205,27 @@ impl<F: Fn(usize, &RomConstants) -> Option<Predicted>> Cost<'_, F> {
     }
 }
 
-impl<F: Fn(usize, &RomConstants) -> Option<Predicted>> CostFunction for Cost<'_, F> {
-    type Param = Vec<f64>;
-    type Output = f64;
-    fn cost(&self, z: &Self::Param) -> Result<f64, argmin::core::Error> {
-        Ok(self.ssr(&to_physical(z, self.bounds)))
-    }
-}
-
 fn nelder_mead<F: Fn(usize, &RomConstants) -> Option<Predicted>>(
-    cost: Cost<'_, F>,
-    z0: Vec<f64>,
+    cost: &Cost<'_, F>,
+    p0: &[f64],
+    seed: u64,
 ) -> Result<(Vec<f64>, f64), String> {
-    let mut simplex = vec![z0.clone()];
-    for i in 0..z0.len() {
-        let mut v = z0.clone();
-        v[i] += 0.5;
-        simplex.push(v);
-    }
-    let solver = NelderMead::new(simplex)
-        .with_sd_tolerance(1e-12)
-        .map_err(|e| e.to_string())?;
-    let res = Executor::new(cost, solver)
-        .configure(|s| s.max_iters(600))
-        .run()
-        .map_err(|e| e.to_string())?;
-    let best = res.state.best_param.clone().unwrap_or(z0);
-    Ok((best, res.state.best_cost))
+    let bounds = search_bounds(cost.bounds);
+    let z0: Vec<f64> = to_search(p0, cost.bounds)
+        .iter()
+        .zip(&bounds)
+        .map(|(z, (lo, hi))| z.clamp(*lo, *hi))
+        .collect();
+    let m = optimizer::minimize_from(
+        |z: &[f64]| cost.ssr(&to_physical(z, cost.bounds)),
+        &bounds,
+        &z0,
+        optimizer::Solver::NelderMead,
+        BUDGET_PER_START,
+        seed,
+    )
+    .map_err(|e| e.to_string())?;
+    Ok((to_physical(&m.x, cost.bounds), m.f))
 }
 
 /// Fit `keys` of `start` to `data` (current densities, A/m^2) given the forward model
@@ -336,7 +342,7 @@ where
                 .collect(),
         );
     }
-    let make = || Cost {
+    let cost = Cost {
         base: *start,
         bounds: &bounds,
         data,
@@ -344,19 +350,14 @@ where
     };
     let mut best: Option<(Vec<f64>, f64)> = None;
     let mut start_costs = Vec::new();
-    for s in &starts {
-        let (z, c) = nelder_mead(make(), to_unbounded(s, &bounds)).map_err(Refusal)?;
+    for (k, s) in starts.iter().enumerate() {
+        let (p, c) = nelder_mead(&cost, s, seed.wrapping_add(k as u64)).map_err(Refusal)?;
         start_costs.push(c);
         if best.as_ref().is_none_or(|b| c < b.1) {
-            best = Some((z, c));
+            best = Some((p, c));
         }
     }
-    // polish from the best start with a fresh simplex
-    let (z, c) = best.expect("at least one start");
-    let (z2, c2) = nelder_mead(make(), z.clone()).map_err(Refusal)?;
-    let z = if c2 <= c { z2 } else { z };
-    let pbest = to_physical(&z, &bounds);
-    let cost = make();
+    let (pbest, _) = best.expect("at least one start");
     let residuals = cost
         .residuals(&pbest)
         .ok_or_else(|| Refusal("the model failed at the fitted constants".into()))?;

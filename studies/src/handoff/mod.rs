@@ -147,6 +147,7 @@ fn layout(card: &CaseCard) -> Result<String, CliError> {
         conducting: &g.conducting_stripes_m,
         delta_m: card.operating_point.boundary_layer_thickness_m,
         wavelength_m: card.predictions.vortex_wavelength_m.value,
+        wall_m: Some(g.gap_m),
     })
     .map_err(CliError::runtime)
 }
@@ -176,8 +177,8 @@ pub fn readme(card: &CaseCard) -> String {
          {temp:.2} K, with the boundary conditions of case.json (boundary_conditions: inflow, \
          outflow, conducting stripes, inert stripes, opposite wall). Apply the diffusion-layer \
          voltage {vv:.4e} V ({vt:.3} thermal units). Dimensionless groups: lambda_D/delta = \
-         {ld:.3e}, coupling constant = {ehd:.3}, Peclet = {pe:.4}, Schmidt = {sc:.4}, \
-         Reynolds = {re:.4}.\n\
+         {ld:.3e}, coupling constant = {ehd:.3}, Peclet = {pe}, Schmidt = {sc}, \
+         Reynolds = {re}.\n\
          Mesh: first wall-normal cell {dy:.3e} m (a quarter of a Debye length), about {cells} \
          cells (see case.json mesh.basis). Run until the window-mean current is statistically \
          steady, then average over at least 20 vortex turnover times.\n\n\
@@ -214,9 +215,9 @@ pub fn readme(card: &CaseCard) -> String {
         vt = card.operating_point.layer_voltage_thermal,
         ld = d.debye_over_delta.value,
         ehd = d.ehd_coupling.value,
-        pe = d.peclet.value,
-        sc = d.schmidt.value,
-        re = d.reynolds.value,
+        pe = svg::fmt_num(d.peclet.value),
+        sc = svg::fmt_num(d.schmidt.value),
+        re = svg::fmt_num(d.reynolds.value),
         dy = card.mesh.wall_normal_first_spacing_m,
         cells = card.mesh.estimated_cells,
         cd = p.current_density_A_m2.value,

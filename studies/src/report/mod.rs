@@ -44,6 +44,9 @@ pub struct Chosen {
     pub design: Design,
     /// Its evaluation with profiles.
     pub eval: Evaluation,
+    /// The same design unpatterned (open fraction 1) at the same operating point, when the
+    /// model could evaluate it.
+    pub twin: Option<Evaluation>,
 }
 
 /// The whole report before it is written.
@@ -242,11 +245,19 @@ fn design_figures(
             k + 1,
             svg::Mark::Line,
         );
+        add_iv(
+            format!("design {} unpatterned", c.id),
+            &rundir::unpatterned(&c.design),
+            k + 1,
+            svg::Mark::Faint,
+        );
     }
     figs.push(Figure {
         file: "iv_curves.svg".into(),
         caption: "Cell-pair current density against cell-pair voltage at the channel inlet (feed \
-                  concentrations): the chosen designs and the unpatterned baseline."
+                  concentrations): the chosen designs (solid), each unpatterned at its own \
+                  velocity and gap (faint, same colour), and the study's unpatterned baseline \
+                  (black)."
             .into(),
         svg: svg::xy_chart(
             "Current-voltage curves",
@@ -280,26 +291,39 @@ fn design_figures(
     ];
     for (file, title, ylabel, pick) in profile_sets {
         let mut series = Vec::new();
-        let mut add = |name: String, e: &Evaluation, colour: usize| {
+        let mut add = |name: String, e: &Evaluation, colour: usize, mark: svg::Mark| {
             if let Some(p) = &e.profiles {
                 series.push(svg::Series {
                     name,
                     points: p.x_m.iter().copied().zip(pick(p).iter().copied()).collect(),
-                    mark: svg::Mark::Line,
+                    mark,
                     colour,
                 });
             }
         };
         if let Some((_, e)) = base {
-            add("unpatterned baseline".into(), e, 0);
+            add("unpatterned baseline".into(), e, 0, svg::Mark::Line);
         }
         for (k, c) in chosen.iter().enumerate() {
-            add(format!("design {}", c.id), &c.eval, k + 1);
+            add(format!("design {}", c.id), &c.eval, k + 1, svg::Mark::Line);
+            if let Some(t) = &c.twin {
+                add(
+                    format!("design {} unpatterned", c.id),
+                    t,
+                    k + 1,
+                    svg::Mark::Faint,
+                );
+            }
         }
         figs.push(Figure {
             file: file.into(),
-            caption: format!("{title}, from inlet (0) to outlet: the chosen designs and the unpatterned baseline."),
-            svg: svg::xy_chart(title, "distance from the inlet (m)", ylabel, &series).map_err(CliError::runtime)?,
+            caption: format!(
+                "{title}, from inlet (0) to outlet: the chosen designs (solid), each unpatterned \
+                 at its own operating point (faint, same colour), and the study's unpatterned \
+                 baseline (black)."
+            ),
+            svg: svg::xy_chart(title, "distance from the inlet (m)", ylabel, &series)
+                .map_err(CliError::runtime)?,
         });
     }
     // each pattern to scale
@@ -310,9 +334,9 @@ fn design_figures(
         let n = case::pitches_for_window(m.pitch_m, delta, lv).min(40);
         let (conducting, _) = case::stripes(m.pitch_m, m.open_fraction, n);
         let window = m.pitch_m * n as f64;
-        let height = (1.5 * delta.max(lv.unwrap_or(0.0) * 0.5))
-            .min(c.design.channel.gap_m)
-            .max(0.2 * window.min(c.design.channel.gap_m));
+        let height = (2.2 * delta)
+            .max(lv.unwrap_or(0.0))
+            .min(1.1 * c.design.channel.gap_m);
         let title = format!(
             "Design {}: pitch {} um, open fraction {}",
             c.id,
@@ -340,6 +364,7 @@ fn design_figures(
                 conducting: &conducting,
                 delta_m: delta,
                 wavelength_m: lv,
+                wall_m: Some(c.design.channel.gap_m),
             })
             .map_err(CliError::runtime)?,
         });
@@ -364,7 +389,16 @@ pub fn build(run: &RunDir) -> Result<Report, CliError> {
         let x = rundir::x_of(run, row)?;
         let design = run.study.design_at(&x);
         match profiled(&design, run, &format!("design {id}")) {
-            Ok(eval) => chosen.push(Chosen { id, why, design, eval }),
+            Ok(eval) => {
+                let twin = profiled(&rundir::unpatterned(&design), run, "twin").ok();
+                chosen.push(Chosen {
+                    id,
+                    why,
+                    design,
+                    eval,
+                    twin,
+                })
+            }
             Err(e) => notes.push(format!("Design {id} could not be re-evaluated ({e}); it is left out of the detailed figures.")),
         }
     }

@@ -118,9 +118,7 @@ pub fn xy_chart(
                         .draw_series(LineSeries::new(s.points.iter().copied(), style))
                         .map_err(err)?
                         .label(s.name.as_str())
-                        .legend(move |(x, y)| {
-                            PathElement::new(vec![(x, y), (x + 18, y)], c.stroke_width(2))
-                        });
+                        .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 18, y)], style));
                 }
                 Mark::Points => {
                     chart
@@ -154,7 +152,26 @@ pub fn scatter_coloured(
 ) -> Result<String, String> {
     let xr = range(points.iter().map(|p| p.0).chain(marked.map(|m| m.0)));
     let yr = range(points.iter().map(|p| p.1).chain(marked.map(|m| m.1)));
-    let cr = range(points.iter().map(|p| p.2));
+    // the colour scale runs over the values themselves (no padding): its ends are the extremes
+    let cr = {
+        let (lo, hi) = points
+            .iter()
+            .map(|p| p.2)
+            .filter(|v| v.is_finite())
+            .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), v| {
+                (lo.min(v), hi.max(v))
+            });
+        if !lo.is_finite() {
+            (0.0, 1.0)
+        } else if hi > lo {
+            (lo, hi)
+        } else {
+            (
+                lo - 0.5 * lo.abs().max(1e-12),
+                hi + 0.5 * hi.abs().max(1e-12),
+            )
+        }
+    };
     let mut buf = String::new();
     {
         let root = SVGBackend::with_string(&mut buf, SIZE).into_drawing_area();
@@ -212,11 +229,22 @@ pub fn scatter_coloured(
                 .map_err(err)?;
         }
         let style = ("sans-serif", 12).into_font().color(&BLACK);
-        bar.draw(&Text::new(fmt_num(cr.1), (0, -16), style.clone()))
+        bar.draw(&Text::new(fmt_num(cr.1), (22, 0), style.clone()))
             .map_err(err)?;
-        bar.draw(&Text::new(fmt_num(cr.0), (0, h as i32 + 4), style.clone()))
+        bar.draw(&Text::new(
+            fmt_num(cr.0),
+            (22, h as i32 - 12),
+            style.clone(),
+        ))
+        .map_err(err)?;
+        // the label on two lines: the name, then the unit in brackets
+        let (name, unit) = match colour_label.find(" (") {
+            Some(k) => (&colour_label[..k], &colour_label[k + 1..]),
+            None => (colour_label, ""),
+        };
+        side.draw(&Text::new(name.to_string(), (4, 16), style.clone()))
             .map_err(err)?;
-        side.draw(&Text::new(colour_label.to_string(), (4, 30), style))
+        side.draw(&Text::new(unit.to_string(), (4, 32), style))
             .map_err(err)?;
         root.present().map_err(err)?;
     }
@@ -253,8 +281,11 @@ pub struct PatternFigure<'a> {
     pub title: &'a str,
     /// Window length, m.
     pub window_m: f64,
-    /// Height shown above the membrane, m.
+    /// Height wanted above the membrane, m (the figure keeps equal scales, so the height shown
+    /// may differ).
     pub height_m: f64,
+    /// The opposite wall, m above the membrane, drawn when it fits.
+    pub wall_m: Option<f64>,
     /// Conducting stripes [x0, x1], m.
     pub conducting: &'a [[f64; 2]],
     /// Diffusion-layer thickness, m.
@@ -263,26 +294,48 @@ pub struct PatternFigure<'a> {
     pub wavelength_m: Option<f64>,
 }
 
+type Chart<'a, 'b> = ChartContext<
+    'a,
+    SVGBackend<'b>,
+    Cartesian2d<plotters::coord::types::RangedCoordf64, plotters::coord::types::RangedCoordf64>,
+>;
+
+fn pattern_chart<'a, 'b>(
+    root: &'a DrawingArea<SVGBackend<'b>, plotters::coord::Shift>,
+    title: &str,
+    w: f64,
+    hgt: f64,
+) -> Result<Chart<'a, 'b>, String> {
+    ChartBuilder::on(root)
+        .caption(title, ("sans-serif", 16))
+        .margin(10)
+        .x_label_area_size(40)
+        .y_label_area_size(60)
+        .build_cartesian_2d(0.0..w, -0.05 * hgt..0.95 * hgt)
+        .map_err(err)
+}
+
 /// Draw a [`PatternFigure`] (equal scales on both axes).
 pub fn pattern(fig: &PatternFigure) -> Result<String, String> {
     let um = 1e6;
     let w = fig.window_m * um;
-    let hgt = fig.height_m * um;
-    // equal aspect: plot width fixed, height follows (bounded for very long windows)
-    let plot_w = 620.0;
-    let plot_h = (plot_w * hgt / w).clamp(80.0, 420.0);
-    let size = (plot_w as u32 + 100, plot_h as u32 + 110);
+    // Equal scales on both axes: the canvas height follows the height asked for, then the
+    // shown height is set from the plotting area's measured pixels.
+    let width = 720u32;
+    let wanted = 1.2 * 600.0 * fig.height_m / fig.window_m;
+    let size = (width, (wanted + 130.0).clamp(260.0, 1000.0) as u32);
+    let (pw, ph) = {
+        let mut scratch = String::new();
+        let root = SVGBackend::with_string(&mut scratch, size).into_drawing_area();
+        let chart = pattern_chart(&root, fig.title, w, 1.0)?;
+        chart.plotting_area().dim_in_pixel()
+    };
+    let hgt = w * ph as f64 / pw as f64;
     let mut buf = String::new();
     {
         let root = SVGBackend::with_string(&mut buf, size).into_drawing_area();
         root.fill(&WHITE).map_err(err)?;
-        let mut chart = ChartBuilder::on(&root)
-            .caption(fig.title, ("sans-serif", 16))
-            .margin(10)
-            .x_label_area_size(40)
-            .y_label_area_size(60)
-            .build_cartesian_2d(0.0..w, -0.06 * hgt..hgt)
-            .map_err(err)?;
+        let mut chart = pattern_chart(&root, fig.title, w, hgt)?;
         chart
             .configure_mesh()
             .x_desc("along the flow (um)")
@@ -291,7 +344,22 @@ pub fn pattern(fig: &PatternFigure) -> Result<String, String> {
             .draw()
             .map_err(err)?;
         // the membrane: inert (grey) everywhere, conducting stripes on top (dark blue)
-        let base = -0.05 * hgt;
+        let base = -0.04 * hgt;
+        if let Some(wall) = fig.wall_m.map(|m| m * um).filter(|m| *m < 0.95 * hgt) {
+            chart
+                .draw_series(std::iter::once(Rectangle::new(
+                    [(0.0, wall), (w, (wall + 0.02 * hgt).min(0.95 * hgt))],
+                    RGBColor(120, 120, 120).filled(),
+                )))
+                .map_err(err)?
+                .label("opposite wall")
+                .legend(|(x, y)| {
+                    Rectangle::new(
+                        [(x, y - 2), (x + 14, y + 2)],
+                        RGBColor(120, 120, 120).filled(),
+                    )
+                });
+        }
         chart
             .draw_series(std::iter::once(Rectangle::new(
                 [(0.0, base), (w, 0.0)],
@@ -410,6 +478,7 @@ mod tests {
             conducting: &[[0.0, 5e-5], [1e-4, 1.5e-4]],
             delta_m: 1e-4,
             wavelength_m: Some(1.2e-4),
+            wall_m: Some(5e-4),
         })
         .unwrap();
         roxmltree::Document::parse(&svg).unwrap();
