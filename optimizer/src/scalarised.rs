@@ -6,9 +6,11 @@
 //! - epsilon constraint, minimise `f_j'` subject to `f_i' <= eps_i` for the others, the bounds
 //!   swept over the front's range (a penalty enforces them).
 //!
-//! `f'` are objectives normalised by the ideal and nadir points estimated from an initial
-//! Latin hypercube sample (the first step) and then kept fixed. Infeasible and failed designs
-//! cost more than any feasible one (a penalty of 1e6 plus the violation).
+//! `f'` are objectives normalised by the ideal and nadir points of a payoff table (Miettinen
+//! 1999, section 2.4): the first step evaluates a Latin hypercube sample (start points and a
+//! first scale), the next `m` steps minimise each objective alone (the anchors), and the
+//! ideal and nadir taken from the anchors then stay fixed for the sweep. Infeasible and failed
+//! designs cost more than any feasible one (a penalty of 1e6 plus the violation).
 //! Evaluations inside a sub-problem are sequential: the solvers are.
 
 use crate::archive::Archive;
@@ -78,6 +80,7 @@ pub(crate) struct ScalarisedState {
     ideal: Vec<f64>,
     nadir: Vec<f64>,
     sampled: bool,
+    anchors: Vec<Vec<f64>>,
     next: usize,
 }
 
@@ -87,12 +90,13 @@ impl ScalarisedState {
             ideal: vec![0.0; m],
             nadir: vec![1.0; m],
             sampled: false,
+            anchors: Vec::new(),
             next: 0,
         }
     }
 
     pub(crate) fn complete(&self, c: &ScalarisedConfig) -> bool {
-        self.sampled && self.next >= c.subproblems
+        self.sampled && self.anchors.len() >= self.ideal.len() && self.next >= c.subproblems
     }
 }
 
@@ -149,10 +153,17 @@ fn lattice(m: usize, left: usize, prefix: &mut Vec<usize>, out: &mut Vec<Vec<usi
 
 const INFEASIBLE_COST: f64 = 1e6;
 
+/// What a step minimises: one objective alone (an anchor) or sub-problem `k`.
+#[derive(Clone, Copy)]
+enum Target {
+    Anchor(usize),
+    Sub(usize),
+}
+
 fn scalar_cost(
     c: &ScalarisedConfig,
     s: &ScalarisedState,
-    k: usize,
+    target: Target,
     w: &[f64],
     e: &Evaluated,
 ) -> f64 {
@@ -165,9 +176,12 @@ fn scalar_cost(
         .zip(s.ideal.iter().zip(&s.nadir))
         .map(|(f, (lo, hi))| (f - lo) / (hi - lo).max(1e-12))
         .collect();
-    let base = match c.scalarisation {
-        Scalarisation::WeightedSum => norm.iter().zip(w).map(|(f, w)| f * w).sum(),
-        Scalarisation::Chebyshev => {
+    let base = match (target, c.scalarisation) {
+        (Target::Anchor(i), _) => norm[i] + 1e-3 * norm.iter().sum::<f64>(),
+        (Target::Sub(_), Scalarisation::WeightedSum) => {
+            norm.iter().zip(w).map(|(f, w)| f * w).sum()
+        }
+        (Target::Sub(_), Scalarisation::Chebyshev) => {
             let max = norm
                 .iter()
                 .zip(w)
@@ -175,7 +189,7 @@ fn scalar_cost(
                 .fold(f64::NEG_INFINITY, f64::max);
             max + 1e-4 * norm.iter().sum::<f64>()
         }
-        Scalarisation::EpsilonConstraint { objective } => {
+        (Target::Sub(k), Scalarisation::EpsilonConstraint { objective }) => {
             let eps = epsilon_levels(norm.len(), objective, k, c.subproblems);
             let over: f64 = norm
                 .iter()
@@ -259,15 +273,23 @@ pub(crate) fn step<P: Problem + ?Sized>(
         s.sampled = true;
         return new;
     }
-    let k = s.next;
-    s.next += 1;
-    let w = weights(m, c.subproblems)[k].clone();
+    let target = if s.anchors.len() < m {
+        Target::Anchor(s.anchors.len())
+    } else {
+        let k = s.next;
+        s.next += 1;
+        Target::Sub(k)
+    };
+    let w = match target {
+        Target::Anchor(_) => vec![0.0; m],
+        Target::Sub(k) => weights(m, c.subproblems)[k].clone(),
+    };
     // Start from the best design seen for this sub-problem.
     let start = archive
         .members()
         .iter()
         .chain(population)
-        .map(|e| (scalar_cost(c, s, k, &w, e), e))
+        .map(|e| (scalar_cost(c, s, target, &w, e), e))
         .filter(|(v, _)| v.is_finite())
         .min_by(|a, b| a.0.total_cmp(&b.0).then(a.1.id.cmp(&b.1.id)))
         .map(|(_, e)| e.x.clone())
@@ -283,14 +305,56 @@ pub(crate) fn step<P: Problem + ?Sized>(
         let mut log = log.lock().unwrap_or_else(|e| e.into_inner());
         let id = first_id + log.len() as u64;
         let e = Evaluated::from_result(id, generation, x.to_vec(), r, nobj, ncon);
-        let v = scalar_cost(c, state, k, &w, &e);
+        let v = scalar_cost(c, state, target, &w, &e);
         log.push(e);
         v
     };
     let bounds: Vec<(f64, f64)> = vars.iter().map(|v| (v.lower, v.upper)).collect();
     // Bounds and start point come from a validated run, so this cannot fail.
     let _ = minimize_from(cost, &bounds, &start, c.solver, budget, seed);
-    log.into_inner().unwrap_or_else(|e| e.into_inner())
+    let new = log.into_inner().unwrap_or_else(|e| e.into_inner());
+    if let Target::Anchor(i) = target {
+        // The anchor: the best feasible design of this step for objective i (or, if none, a
+        // copy of the current scale so the payoff table stays complete).
+        let best = new
+            .iter()
+            .filter(|e| e.is_feasible())
+            .min_by(|a, b| a.objectives[i].total_cmp(&b.objectives[i]));
+        let anchor = match best {
+            Some(e) => e.objectives.clone(),
+            None => s.nadir.clone(),
+        };
+        s.anchors.push(anchor);
+        if s.anchors.len() == m {
+            payoff_scale(s, archive, &new);
+        }
+    }
+    new
+}
+
+/// Ideal point: the best value of each objective over the archive and this step; nadir: the
+/// worst value of each objective over the anchors (payoff table). A degenerate range keeps
+/// the sample's scale.
+fn payoff_scale(s: &mut ScalarisedState, archive: &Archive, new: &[Evaluated]) {
+    let m = s.ideal.len();
+    for i in 0..m {
+        let ideal = archive
+            .members()
+            .iter()
+            .chain(new.iter().filter(|e| e.is_feasible()))
+            .map(|e| e.objectives[i])
+            .chain(s.anchors.iter().map(|a| a[i]))
+            .fold(f64::INFINITY, f64::min);
+        let nadir = s
+            .anchors
+            .iter()
+            .map(|a| a[i])
+            .fold(f64::NEG_INFINITY, f64::max);
+        if nadir - ideal > 1e-12 * nadir.abs().max(1.0) {
+            s.ideal[i] = ideal;
+            s.nadir[i] = nadir;
+        }
+    }
 }
 
 #[cfg(test)]

@@ -4,8 +4,11 @@
 //! annealing (Kirkpatrick, Gelatt and Vecchi, Science 220 (1983) 671).
 //!
 //! argmin's types stay inside this module. The adapter
-//! - clamps every trial point into the bounds and adds a penalty growing with the distance
-//!   outside them (Nelder-Mead and annealing moves are unbounded);
+//! - keeps trial points inside the bounds: Nelder-Mead works on unbounded coordinates `z`
+//!   mapped by `x = lo + (hi - lo) (1 + sin z) / 2` (the bounded simplex transformation of
+//!   D'Errico's fminsearchbnd; a clamp plus penalty makes the simplex collapse against a
+//!   bound), annealing moves are clamped, and any other trial point outside is clamped and
+//!   penalised by its distance outside;
 //! - turns a NaN or infinite cost into a large finite penalty, because argmin's Nelder-Mead
 //!   has no guard against NaN;
 //! - counts evaluations and stops the solver when the budget is used up;
@@ -74,11 +77,23 @@ struct Adapter<'a, F> {
     upper: &'a [f64],
     budget: u64,
     init_temp: f64,
+    sine_map: bool,
     tracker: &'a Mutex<Tracker>,
 }
 
 impl<F: Fn(&[f64]) -> f64> Adapter<'_, F> {
     fn clamp(&self, p: &[f64]) -> (Vec<f64>, f64) {
+        if self.sine_map {
+            let x = p
+                .iter()
+                .zip(self.lower.iter().zip(self.upper))
+                .map(|(z, (lo, hi))| {
+                    let z = if z.is_finite() { *z } else { 0.0 };
+                    (lo + (hi - lo) * 0.5 * (1.0 + z.sin())).clamp(*lo, *hi)
+                })
+                .collect();
+            return (x, 0.0);
+        }
         let mut outside = 0.0;
         let x = p
             .iter()
@@ -140,16 +155,17 @@ impl<F: Fn(&[f64]) -> f64> Anneal for Adapter<'_, F> {
     type Float = f64;
 
     fn anneal(&self, p: &Vec<f64>, temp: f64) -> Result<Vec<f64>, ArgminError> {
-        // Step size: a quarter of the range at the initial temperature, shrinking with it.
-        let scale = 0.25 * (temp / self.init_temp).clamp(1e-6, 1.0);
+        // One coordinate a move (as in Corana, Marchesi, Martini and Ridella, ACM TOMS 13
+        // (1987) 262), with a step of half the range at the initial temperature, shrinking
+        // with the square root of the temperature.
+        let scale = 0.5 * (temp / self.init_temp).clamp(1e-10, 1.0).sqrt();
         let mut t = self.lock();
-        Ok(p.iter()
-            .zip(self.lower.iter().zip(self.upper))
-            .map(|(v, (lo, hi))| {
-                let u: f64 = t.rng.random();
-                (v + (2.0 * u - 1.0) * scale * (hi - lo)).clamp(*lo, *hi)
-            })
-            .collect())
+        let i = t.rng.random_range(0..p.len());
+        let u: f64 = t.rng.random();
+        let mut x = p.clone();
+        let (lo, hi) = (self.lower[i], self.upper[i]);
+        x[i] = (x[i] + (2.0 * u - 1.0) * scale * (hi - lo)).clamp(lo, hi);
+        Ok(x)
     }
 }
 
@@ -218,6 +234,7 @@ pub fn minimize_from<F: Fn(&[f64]) -> f64>(
         upper: &upper,
         budget,
         init_temp: 1.0,
+        sine_map: false,
         tracker: &tracker,
     };
     match solver {
@@ -241,8 +258,21 @@ pub fn minimize_from<F: Fn(&[f64]) -> f64>(
 }
 
 fn nelder_mead<F: Fn(&[f64]) -> f64>(a: &Adapter<'_, F>, x0: &[f64]) {
-    let mut start = x0.to_vec();
-    let mut size = 0.1;
+    let a = &Adapter {
+        sine_map: true,
+        ..a.again()
+    };
+    let to_z = |x: &[f64]| -> Vec<f64> {
+        x.iter()
+            .zip(a.lower.iter().zip(a.upper))
+            .map(|(v, (lo, hi))| {
+                let t = if hi > lo { (v - lo) / (hi - lo) } else { 0.5 };
+                (2.0 * t - 1.0).clamp(-1.0, 1.0).asin()
+            })
+            .collect()
+    };
+    let mut start = to_z(x0);
+    let mut size = 0.5;
     let mut last_best = f64::INFINITY;
     // Restart from the best point with a smaller simplex while budget remains: a collapsed
     // simplex is a known failure mode of Nelder-Mead (McKinnon, SIAM J. Optim. 9 (1998) 148).
@@ -251,7 +281,7 @@ fn nelder_mead<F: Fn(&[f64]) -> f64>(a: &Adapter<'_, F>, x0: &[f64]) {
         if left == 0 {
             break;
         }
-        let simplex = initial_simplex(&start, a.lower, a.upper, size);
+        let simplex = initial_simplex(&start, size);
         let solver = NelderMead::new(simplex)
             .with_sd_tolerance(1e-15)
             .expect("a positive tolerance is accepted");
@@ -263,7 +293,7 @@ fn nelder_mead<F: Fn(&[f64]) -> f64>(a: &Adapter<'_, F>, x0: &[f64]) {
         match a.best() {
             Some((x, f)) if f < last_best => {
                 last_best = f;
-                start = x;
+                start = to_z(&x);
                 size *= 0.5;
             }
             _ => break,
@@ -271,15 +301,16 @@ fn nelder_mead<F: Fn(&[f64]) -> f64>(a: &Adapter<'_, F>, x0: &[f64]) {
     }
 }
 
-fn initial_simplex(x0: &[f64], lo: &[f64], hi: &[f64], size: f64) -> Vec<Vec<f64>> {
-    let mut s = vec![x0.to_vec()];
-    for i in 0..x0.len() {
-        let mut v = x0.to_vec();
-        let step = size * (hi[i] - lo[i]).max(1e-12);
-        v[i] = if v[i] + step <= hi[i] {
-            v[i] + step
+/// A right-angled simplex at `z0` with legs `size` (in the unbounded coordinates); a leg
+/// that would cross the crest of the sine map (|z| > pi/2) points the other way.
+fn initial_simplex(z0: &[f64], size: f64) -> Vec<Vec<f64>> {
+    let mut s = vec![z0.to_vec()];
+    for i in 0..z0.len() {
+        let mut v = z0.to_vec();
+        v[i] = if v[i] + size <= std::f64::consts::FRAC_PI_2 {
+            v[i] + size
         } else {
-            v[i] - step
+            v[i] - size
         };
         s.push(v);
     }
