@@ -7,6 +7,20 @@ use std::path::Path;
 /// Write `bytes` to `path` atomically: a temporary file in the same directory, fsync, rename
 /// over the target, then fsync the directory so the rename itself survives a power cut.
 pub fn write_atomic(path: &Path, bytes: &[u8]) -> io::Result<()> {
+    write_replace(path, bytes)?;
+    sync_dir(parent_dir(path))
+}
+
+fn parent_dir(path: &Path) -> &Path {
+    match path.parent() {
+        Some(d) if !d.as_os_str().is_empty() => d,
+        _ => Path::new("."),
+    }
+}
+
+/// Like [`write_atomic`] without the final directory fsync, for several replacements in one
+/// directory followed by one [`sync_dir`].
+pub fn write_replace(path: &Path, bytes: &[u8]) -> io::Result<()> {
     let dir = match path.parent() {
         Some(d) if !d.as_os_str().is_empty() => d,
         _ => Path::new("."),
@@ -23,8 +37,7 @@ pub fn write_atomic(path: &Path, bytes: &[u8]) -> io::Result<()> {
         f.write_all(bytes)?;
         f.sync_all()?;
         drop(f);
-        fs::rename(&tmp, path)?;
-        sync_dir(dir)
+        fs::rename(&tmp, path)
     })();
     if result.is_err() {
         let _ = fs::remove_file(&tmp);

@@ -57,7 +57,11 @@ struct State {
     history_bytes: u64,
     elapsed_before_s: f64,
     cap_noted: bool,
+    derived_written: Option<Instant>,
 }
+
+/// Longest time front.csv and summary.json lag behind the checkpoint during a run.
+const DERIVED_EVERY: Duration = Duration::from_secs(5);
 
 fn cmd_err(field: &str, message: impl Into<String>, allowed: &str) -> CliError {
     CliError::input("command line", None, field, message, allowed)
@@ -231,7 +235,7 @@ pub fn run(opts: &RunOptions) -> Result<Ended, CliError> {
     let stop_reason = match ended {
         Ended::Finished(r) | Ended::Paused(r) => r,
     };
-    // The final summary (and a front computed with the same cache, unchanged content).
+    write_front(&rd, &study, &state, &mut front_cache)?;
     write_summary(
         &rd,
         &study,
@@ -287,6 +291,7 @@ fn start(
         history_bytes: HISTORY_HEADER.len() as u64,
         elapsed_before_s: 0.0,
         cap_noted: false,
+        derived_written: None,
     };
     write_atomic(&rd.study(), study.to_resolved_toml().as_bytes())
         .map_err(|e| io_error("write", &rd.study(), e))?;
@@ -360,6 +365,7 @@ fn resume(rd: &RunDir, study: &Study, fingerprint: &str) -> Result<State, CliErr
         history_bytes: cp.history_csv_bytes,
         elapsed_before_s: cp.elapsed_s,
         cap_noted: cp.evaluations_csv_rows >= EVALUATIONS_CSV_CAP,
+        derived_written: None,
     })
 }
 
@@ -402,8 +408,16 @@ fn commit(
     append_synced(&rd.history(), line.as_bytes())
         .map_err(|e| io_error("append to", &rd.history(), e))?;
     state.history_bytes += line.len() as u64;
-    write_front(rd, study, state, cache)?;
-    write_summary(rd, study, state, elapsed, fingerprint, stop_reason, false)?;
+    // front.csv and summary.json follow from the checkpoint (a resume rewrites them), so on
+    // fast generations they are refreshed every few seconds rather than every generation.
+    if state
+        .derived_written
+        .is_none_or(|t| t.elapsed() >= DERIVED_EVERY)
+    {
+        write_front(rd, study, state, cache)?;
+        write_summary(rd, study, state, elapsed, fingerprint, stop_reason, false)?;
+        state.derived_written = Some(Instant::now());
+    }
     write_checkpoint(rd, state, elapsed, fingerprint)
 }
 
@@ -423,8 +437,8 @@ fn write_checkpoint(
     elapsed: f64,
     fingerprint: &str,
 ) -> Result<(), CliError> {
-    let run: serde_json::Value = serde_json::from_str(&state.run.to_json())
-        .map_err(|e| CliError::Runtime(format!("optimiser state: {e}")))?;
+    // The optimiser state is spliced in as its own JSON text (no second parse of a state
+    // that can be large).
     let cp = Checkpoint {
         version: CHECKPOINT_VERSION,
         fingerprint: fingerprint.to_string(),
@@ -432,10 +446,14 @@ fn write_checkpoint(
         evaluations_csv_rows: state.eval_rows,
         history_csv_bytes: state.history_bytes,
         elapsed_s: elapsed,
-        run,
+        run: serde_json::Value::Null,
     };
-    let text =
+    let head =
         serde_json::to_string(&cp).map_err(|e| CliError::Runtime(format!("checkpoint: {e}")))?;
+    let head = head
+        .strip_suffix("\"run\":null}")
+        .ok_or_else(|| CliError::Runtime("checkpoint: unexpected layout".into()))?;
+    let text = format!("{head}\"run\":{}}}", state.run.to_json());
     write_atomic(&rd.checkpoint(), text.as_bytes())
         .map_err(|e| io_error("write", &rd.checkpoint(), e))
 }

@@ -409,9 +409,9 @@ pub fn reference_markdown() -> String {
             ));
         }
         if *section == "rom" {
-            for (key, default) in rom_keys() {
+            for (key, _) in rom_keys() {
                 out.push_str(&format!(
-                    "| `{key}` | number | - | `{default}` | finite | | ROM constant `{key}` (see the model's constants table for meaning and source). |\n"
+                    "| `{key}` | number | - | the model's value | finite | | ROM constant `{key}`: meaning, default and source in the model's constants table (`stria check` prints the values in force). |\n"
                 ));
             }
         }
