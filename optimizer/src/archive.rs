@@ -8,10 +8,36 @@ use crate::problem::Evaluated;
 use serde::{Deserialize, Serialize};
 
 /// Non-dominated feasible designs, in the order they were found (ascending id).
-#[derive(Debug, Clone, PartialEq, Default, Serialize, Deserialize)]
+#[derive(Debug, Clone, Default, Serialize, Deserialize)]
 pub struct Archive {
     epsilon: Option<Vec<f64>>,
     members: Vec<Evaluated>,
+    /// Members' objectives in lexicographic order (two or three objectives), a cache for
+    /// [`Archive::insert_batch`]; not part of the state.
+    #[serde(skip)]
+    order: Vec<SortKey>,
+}
+
+impl PartialEq for Archive {
+    fn eq(&self, other: &Self) -> bool {
+        self.epsilon == other.epsilon && self.members == other.members
+    }
+}
+
+/// Objectives (third zero for two objectives) and id.
+type SortKey = ([f64; 3], u64);
+
+fn sort_key(e: &Evaluated) -> SortKey {
+    let f = &e.objectives;
+    ([f[0], f[1], f.get(2).copied().unwrap_or(0.0)], e.id)
+}
+
+fn key_cmp(a: &SortKey, b: &SortKey) -> std::cmp::Ordering {
+    a.0[0]
+        .total_cmp(&b.0[0])
+        .then(a.0[1].total_cmp(&b.0[1]))
+        .then(a.0[2].total_cmp(&b.0[2]))
+        .then(a.1.cmp(&b.1))
 }
 
 fn grid_box(f: &[f64], eps: &[f64]) -> Vec<i64> {
@@ -44,6 +70,7 @@ impl Archive {
         Archive {
             epsilon,
             members: Vec::new(),
+            order: Vec::new(),
         }
     }
 
@@ -81,6 +108,82 @@ impl Archive {
             None => self.insert_plain(e),
             Some(eps) => self.insert_epsilon(e, &eps),
         }
+    }
+
+    /// Offer a batch of designs (ids ascending, all above the archive's). The result is the
+    /// same as offering them one by one with [`Archive::insert`]: the non-dominated set of
+    /// archive and batch, of equal objective vectors the earliest kept. With two or three
+    /// objectives and no epsilon grid this is a sort-and-sweep, O(n log n) in the archive
+    /// size (Kung, Luccio and Preparata, J. ACM 22 (1975) 469).
+    pub fn insert_batch(&mut self, batch: &[Evaluated]) {
+        let m = self.members.first().map_or(0, |e| e.objectives.len());
+        let feasible: Vec<&Evaluated> = batch.iter().filter(|e| e.is_feasible()).collect();
+        let m = if m == 0 {
+            feasible.first().map_or(0, |e| e.objectives.len())
+        } else {
+            m
+        };
+        if self.epsilon.is_some() || !(m == 2 || m == 3) || feasible.len() < 8 {
+            for e in feasible {
+                self.insert(e);
+            }
+            return;
+        }
+        // Sort keys of the members, kept between calls (derived data, rebuilt after a
+        // deserialisation or a one-by-one insertion).
+        if self.order.len() != self.members.len() {
+            self.order = self.members.iter().map(sort_key).collect();
+            self.order.sort_unstable_by(key_cmp);
+        }
+        let mut fresh: Vec<SortKey> = feasible.iter().map(|e| sort_key(e)).collect();
+        fresh.sort_unstable_by(key_cmp);
+        // Merge the two sorted key lists.
+        let old = std::mem::take(&mut self.order);
+        let mut merged = Vec::with_capacity(old.len() + fresh.len());
+        let (mut i, mut j) = (0, 0);
+        while i < old.len() || j < fresh.len() {
+            if j == fresh.len() || (i < old.len() && key_cmp(&old[i], &fresh[j]).is_le()) {
+                merged.push(old[i]);
+                i += 1;
+            } else {
+                merged.push(fresh[j]);
+                j += 1;
+            }
+        }
+        // Sweep in sorted order: a point is dominated (or a later duplicate) exactly when an
+        // earlier one is no worse in the remaining objectives.
+        let mut kept: Vec<SortKey> = Vec::with_capacity(merged.len());
+        if m == 2 {
+            let mut best = f64::INFINITY;
+            for k in merged {
+                if k.0[1] < best {
+                    best = k.0[1];
+                    kept.push(k);
+                }
+            }
+        } else {
+            let mut stairs = Staircase::default();
+            for k in merged {
+                if stairs.insert_if_not_dominated(k.0[1], k.0[2]) {
+                    kept.push(k);
+                }
+            }
+        }
+        let mut ids: Vec<u64> = kept.iter().map(|k| k.1).collect();
+        ids.sort_unstable();
+        let mut members = Vec::with_capacity(ids.len());
+        let mut next = ids.iter().peekable();
+        for e in std::mem::take(&mut self.members)
+            .into_iter()
+            .chain(feasible.into_iter().cloned())
+        {
+            if next.peek().is_some_and(|&&id| id == e.id) {
+                next.next();
+                members.push(e);
+            }
+        }
+        self.members = members;
+        self.order = kept;
     }
 
     fn insert_plain(&mut self, e: &Evaluated) -> bool {
@@ -127,6 +230,28 @@ impl Archive {
     }
 }
 
+/// Mutually non-dominated 2-D points (x ascending, y descending), in a sorted vector.
+#[derive(Default)]
+struct Staircase(Vec<(f64, f64)>);
+
+impl Staircase {
+    /// Insert (x, y) unless a point with x' <= x and y' <= y is present; drop the points it
+    /// dominates. Returns whether it was inserted.
+    fn insert_if_not_dominated(&mut self, x: f64, y: f64) -> bool {
+        let at = self.0.partition_point(|q| q.0 <= x);
+        if at > 0 && self.0[at - 1].1 <= y {
+            return false;
+        }
+        let start = self.0.partition_point(|q| q.0 < x);
+        let mut end = start;
+        while end < self.0.len() && self.0[end].1 >= y {
+            end += 1;
+        }
+        self.0.splice(start..end, [(x, y)]);
+        true
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -153,6 +278,37 @@ mod tests {
         assert!(a.insert(&ev(4, &[0.5, 0.5])));
         assert_eq!(a.len(), 1);
         assert_eq!(a.members()[0].id, 4);
+    }
+
+    #[test]
+    fn batch_insertion_equals_one_by_one() {
+        // Random integer-valued points (many ties and duplicates), 2 and 3 objectives.
+        let mut state = 12345u64;
+        let mut next = || {
+            state = state
+                .wrapping_mul(6364136223846793005)
+                .wrapping_add(1442695040888963407);
+            ((state >> 33) % 7) as f64
+        };
+        for m in [2, 3] {
+            let mut one = Archive::new(None);
+            let mut batch = Archive::new(None);
+            let mut id = 0;
+            for _ in 0..20 {
+                let b: Vec<Evaluated> = (0..15)
+                    .map(|_| {
+                        id += 1;
+                        let f: Vec<f64> = (0..m).map(|_| next()).collect();
+                        ev(id, &f)
+                    })
+                    .collect();
+                for e in &b {
+                    one.insert(e);
+                }
+                batch.insert_batch(&b);
+                assert_eq!(one, batch);
+            }
+        }
     }
 
     #[test]

@@ -18,6 +18,29 @@ pub fn dominates(a: &[f64], b: &[f64]) -> bool {
     better
 }
 
+enum Relation {
+    First,
+    Second,
+    Neither,
+}
+
+/// Pareto relation of two objective vectors in one pass.
+fn relation(a: &[f64], b: &[f64]) -> Relation {
+    let (mut a_better, mut b_better) = (false, false);
+    for (x, y) in a.iter().zip(b) {
+        if x < y {
+            a_better = true;
+        } else if y < x {
+            b_better = true;
+        }
+    }
+    match (a_better, b_better) {
+        (true, false) => Relation::First,
+        (false, true) => Relation::Second,
+        _ => Relation::Neither,
+    }
+}
+
 /// Constrained domination (Deb et al. 2002, section IV): a feasible design beats an infeasible
 /// one, of two infeasible designs the one with less violation wins, and two feasible designs
 /// compare by Pareto dominance. A failed evaluation carries the largest violation.
@@ -34,16 +57,31 @@ pub fn constrained_dominates(a: &Evaluated, b: &Evaluated) -> bool {
 /// `pop`, each front in ascending index order) and the rank of every member (0 = first front).
 pub fn non_dominated_sort(pop: &[Evaluated]) -> (Vec<Vec<usize>>, Vec<usize>) {
     let n = pop.len();
+    let feasible: Vec<bool> = pop.iter().map(|e| e.is_feasible()).collect();
     let mut dominated_by_count = vec![0usize; n];
     let mut dominates_list: Vec<Vec<usize>> = vec![Vec::new(); n];
     for i in 0..n {
         for j in (i + 1)..n {
-            if constrained_dominates(&pop[i], &pop[j]) {
-                dominates_list[i].push(j);
-                dominated_by_count[j] += 1;
-            } else if constrained_dominates(&pop[j], &pop[i]) {
-                dominates_list[j].push(i);
-                dominated_by_count[i] += 1;
+            let rel = match (feasible[i], feasible[j]) {
+                (true, false) => Relation::First,
+                (false, true) => Relation::Second,
+                (false, false) => match pop[i].violation.total_cmp(&pop[j].violation) {
+                    Ordering::Less => Relation::First,
+                    Ordering::Greater => Relation::Second,
+                    Ordering::Equal => Relation::Neither,
+                },
+                (true, true) => relation(&pop[i].objectives, &pop[j].objectives),
+            };
+            match rel {
+                Relation::First => {
+                    dominates_list[i].push(j);
+                    dominated_by_count[j] += 1;
+                }
+                Relation::Second => {
+                    dominates_list[j].push(i);
+                    dominated_by_count[i] += 1;
+                }
+                Relation::Neither => {}
             }
         }
     }

@@ -10,31 +10,18 @@
 //!   Barone and Huband, IEEE Trans. Evol. Comput. 10 (2006) 29), recursing down to the 3-D
 //!   sweep; exact, O(n^(m-2) log n).
 
-use std::cmp::Ordering;
-use std::collections::BTreeMap;
-
-#[derive(Debug, Clone, Copy, PartialEq)]
-struct Key(f64);
-impl Eq for Key {}
-impl PartialOrd for Key {
-    fn partial_cmp(&self, other: &Self) -> Option<Ordering> {
-        Some(self.cmp(other))
-    }
-}
-impl Ord for Key {
-    fn cmp(&self, other: &Self) -> Ordering {
-        self.0.total_cmp(&other.0)
-    }
-}
-
 /// Exact hypervolume of `points` with respect to `reference` (minimisation). Points that do
 /// not strictly dominate the reference point contribute nothing; non-finite points are
 /// ignored. Returns 0 for an empty set.
 pub fn hypervolume(points: &[Vec<f64>], reference: &[f64]) -> f64 {
+    hypervolume_of(points.iter().map(|p| p.as_slice()), reference)
+}
+
+/// [`hypervolume`] of borrowed points (no copy of the set).
+pub fn hypervolume_of<'a>(points: impl IntoIterator<Item = &'a [f64]>, reference: &[f64]) -> f64 {
     let m = reference.len();
     let pts: Vec<&[f64]> = points
-        .iter()
-        .map(|p| p.as_slice())
+        .into_iter()
         .filter(|p| p.len() == m && p.iter().zip(reference).all(|(a, r)| a.is_finite() && a < r))
         .collect();
     hv_rec(&pts, reference)
@@ -88,39 +75,39 @@ fn hv2(pts: &[&[f64]], r: &[f64]) -> f64 {
 fn hv3(pts: &[&[f64]], r: &[f64]) -> f64 {
     let mut p: Vec<[f64; 3]> = pts.iter().map(|p| [p[0], p[1], p[2]]).collect();
     p.sort_by(|a, b| a[2].total_cmp(&b[2]));
-    // Staircase of the (x, y) projections seen so far: x ascending, y descending.
-    let mut stairs: BTreeMap<Key, f64> = BTreeMap::new();
+    // Staircase of the (x, y) projections seen so far: x ascending, y descending. A sorted
+    // vector: the staircase of a front stays small, so shifting is cheaper than a tree.
+    let mut stairs: Vec<(f64, f64)> = Vec::new();
     let mut area = 0.0;
     let mut vol = 0.0;
     for i in 0..p.len() {
         let [px, py, _] = p[i];
+        // First entry with x >= px, and the entry before it (x < px).
+        let at = stairs.partition_point(|q| q.0 < px);
         let dominated = stairs
-            .range(..=Key(px))
-            .next_back()
-            .is_some_and(|(_, &qy)| qy <= py);
+            .get(at)
+            .is_some_and(|q| q.0.total_cmp(&px).is_eq() && q.1 <= py)
+            || (at > 0 && stairs[at - 1].1 <= py);
         if !dominated {
-            let mut h = stairs
-                .range(..Key(px))
-                .next_back()
-                .map_or(r[1], |(_, &qy)| qy);
+            let mut h = if at > 0 { stairs[at - 1].1 } else { r[1] };
             let mut xcur = px;
             let mut added = 0.0;
-            let mut open = true;
-            while let Some((&Key(qx), &qy)) = stairs.range(Key(px)..).next() {
+            let mut end = at;
+            while end < stairs.len() {
+                let (qx, qy) = stairs[end];
                 added += (qx - xcur) * (h - py);
                 xcur = qx;
                 if qy >= py {
-                    stairs.remove(&Key(qx));
                     h = qy;
+                    end += 1;
                 } else {
-                    open = false;
                     break;
                 }
             }
-            if open {
+            if end == stairs.len() {
                 added += (r[0] - xcur) * (h - py);
             }
-            stairs.insert(Key(px), py);
+            stairs.splice(at..end, [(px, py)]);
             area += added;
         }
         let znext = if i + 1 < p.len() { p[i + 1][2] } else { r[2] };

@@ -34,7 +34,7 @@ pub mod single;
 
 pub use archive::Archive;
 pub use doe::InitialDesign;
-pub use indicators::{hypervolume, igd, igd_plus};
+pub use indicators::{hypervolume, hypervolume_of, igd, igd_plus};
 pub use nsga2::Nsga2Config;
 pub use problem::{Evaluated, Outcome, Problem, Variable};
 pub use run::{Algorithm, ConfigError, Run, RunConfig, StepReport, StopReason};

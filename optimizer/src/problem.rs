@@ -167,7 +167,9 @@ pub(crate) fn evaluate_guarded<P: Problem + ?Sized>(
 }
 
 /// Evaluate a batch in parallel (rayon); ids run from `first_id` in the order of `xs`, so the
-/// result does not depend on the number of threads.
+/// result does not depend on the number of threads. When the first evaluation takes less
+/// than [`CHEAP_EVALUATION`], the rest run on the calling thread: waking the thread pool would
+/// cost more than it saves (the records are the same either way).
 pub(crate) fn evaluate_batch<P: Problem + ?Sized>(
     problem: &P,
     xs: Vec<Vec<f64>>,
@@ -176,11 +178,24 @@ pub(crate) fn evaluate_batch<P: Problem + ?Sized>(
 ) -> Vec<Evaluated> {
     let m = problem.num_objectives();
     let k = problem.num_constraints();
-    xs.into_par_iter()
-        .enumerate()
-        .map(|(i, x)| {
-            let r = evaluate_guarded(problem, &x);
-            Evaluated::from_result(first_id + i as u64, generation, x, r, m, k)
-        })
-        .collect()
+    let one = |(i, x): (usize, Vec<f64>)| {
+        let r = evaluate_guarded(problem, &x);
+        Evaluated::from_result(first_id + i as u64, generation, x, r, m, k)
+    };
+    let mut items = xs.into_iter().enumerate();
+    let Some(first) = items.next() else {
+        return Vec::new();
+    };
+    let started = std::time::Instant::now();
+    let mut out = vec![one(first)];
+    if started.elapsed() < CHEAP_EVALUATION {
+        out.extend(items.map(one));
+    } else {
+        let rest: Vec<(usize, Vec<f64>)> = items.collect();
+        out.par_extend(rest.into_par_iter().map(one));
+    }
+    out
 }
+
+/// Evaluations faster than this run sequentially (see [`evaluate_batch`]).
+pub(crate) const CHEAP_EVALUATION: std::time::Duration = std::time::Duration::from_micros(20);

@@ -2,7 +2,7 @@
 
 use crate::archive::Archive;
 use crate::doe::{self, InitialDesign};
-use crate::indicators::hypervolume;
+use crate::indicators::hypervolume_of;
 use crate::nsga2::{self, Nsga2Config};
 use crate::problem::{evaluate_batch, Evaluated, Problem, Variable};
 use crate::scalarised::{self, ScalarisedConfig, ScalarisedState};
@@ -342,9 +342,7 @@ impl Run {
             _ => unreachable!("the state always matches the configured algorithm"),
         };
         self.evaluations += new.len() as u64;
-        for e in &new {
-            self.archive.insert(e);
-        }
+        self.archive.insert_batch(&new);
         let hv = self.update_hypervolume();
         self.generation += 1;
         let feasible = new.iter().filter(|e| e.is_feasible()).count();
@@ -363,7 +361,12 @@ impl Run {
 
     fn update_hypervolume(&mut self) -> f64 {
         if self.hv_reference.is_none() && !self.archive.is_empty() {
-            let pts = self.archive.objectives();
+            let pts: Vec<&[f64]> = self
+                .archive
+                .members()
+                .iter()
+                .map(|e| e.objectives.as_slice())
+                .collect();
             let r = (0..self.num_objectives)
                 .map(|i| {
                     let hi = pts.iter().map(|p| p[i]).fold(f64::NEG_INFINITY, f64::max);
@@ -375,7 +378,13 @@ impl Run {
             self.hv_reference = Some(r);
         }
         let hv = match &self.hv_reference {
-            Some(r) => hypervolume(&self.archive.objectives(), r),
+            Some(r) => hypervolume_of(
+                self.archive
+                    .members()
+                    .iter()
+                    .map(|e| e.objectives.as_slice()),
+                r,
+            ),
             None => 0.0,
         };
         self.hv_history.push(hv);
