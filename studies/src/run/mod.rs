@@ -254,7 +254,7 @@ pub fn run(opts: &RunOptions) -> Result<Ended, CliError> {
             dir.display()
         ),
         Ended::Paused(r) => eprintln!(
-            "paused ({r}) at generation {} after {} evaluations; everything is written.\nresume with: stria run {} --out {}",
+            "paused ({r}) after {} generations and {} evaluations; everything is written.\nresume with: stria run {} --out {}",
             state.run.generation(),
             state.run.evaluations(),
             opts.study.display(),
