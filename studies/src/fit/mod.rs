@@ -178,7 +178,11 @@ pub fn constants_toml(cal: &Calibration, data_file: &Path) -> Result<String, Cli
         cal.result.residuals.len()
     );
     for (k, v, s) in &cal.result.parameters {
-        head.push_str(&format!("# fitted: {k} = {v:.6} +- {s:.3} (one sigma)\n"));
+        head.push_str(&format!(
+            "# fitted: {k} = {} +- {} (one sigma)\n",
+            svg::fmt_num(*v),
+            svg::fmt_num(*s)
+        ));
     }
     head.push_str(
         "# Every other key is the value the fit started from (the study's constants).\n\n",
@@ -289,7 +293,12 @@ pub fn run(
     println!("Constants (start -> fitted +- one sigma):");
     for (k, v, s) in &r.parameters {
         let start = solve::get(&cal.start, k).unwrap_or(f64::NAN);
-        println!("  {k:<26} {start:>10.4} -> {v:>10.4} +- {s:.3}");
+        println!(
+            "  {k:<26} {:>10} -> {:>10} +- {}",
+            svg::fmt_num(start),
+            svg::fmt_num(*v),
+            svg::fmt_num(*s)
+        );
     }
     for k in &r.at_bound {
         println!(

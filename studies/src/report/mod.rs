@@ -113,6 +113,22 @@ pub fn best_few(run: &RunDir) -> Vec<(u64, String)> {
 fn front_figures(run: &RunDir, baseline: Option<&Evaluation>) -> Result<Vec<Figure>, CliError> {
     let objs = &run.study.objectives;
     let mut figs = Vec::new();
+    // the baseline may break a constraint the front respects: say so beside the mark
+    let violated: Vec<&str> = baseline
+        .map(|e| {
+            run.study
+                .constraints
+                .iter()
+                .filter(|c| c.g(e) > 0.0)
+                .map(|c| c.key())
+                .collect()
+        })
+        .unwrap_or_default();
+    let baseline_label = if violated.is_empty() {
+        "unpatterned baseline".to_string()
+    } else {
+        format!("unpatterned baseline (infeasible: {})", violated.join(", "))
+    };
     let diag = "active_area_fraction";
     for a in 0..objs.len() {
         for b in (a + 1)..objs.len() {
@@ -148,7 +164,7 @@ fn front_figures(run: &RunDir, baseline: Option<&Evaluation>) -> Result<Vec<Figu
                     )
                 })
                 .collect();
-            let mark = baseline.map(|e| (oa.value(e), ob.value(e), "unpatterned baseline"));
+            let mark = baseline.map(|e| (oa.value(e), ob.value(e), baseline_label.as_str()));
             let svg = svg::scatter_coloured(
                 &format!("Front: {} against {}", ob.key(), oa.key()),
                 &format!("{} ({}, {})", oa.key(), oa.unit(), oa.direction()),

@@ -102,6 +102,8 @@ pub fn xy_chart(
             .configure_mesh()
             .x_desc(x_label)
             .y_desc(y_label)
+            .x_label_formatter(&|v| fmt_num(*v))
+            .y_label_formatter(&|v| fmt_num(*v))
             .light_line_style(WHITE)
             .draw()
             .map_err(err)?;
@@ -188,6 +190,8 @@ pub fn scatter_coloured(
             .configure_mesh()
             .x_desc(x_label)
             .y_desc(y_label)
+            .x_label_formatter(&|v| fmt_num(*v))
+            .y_label_formatter(&|v| fmt_num(*v))
             .light_line_style(WHITE)
             .draw()
             .map_err(err)?;
@@ -340,6 +344,8 @@ pub fn pattern(fig: &PatternFigure) -> Result<String, String> {
             .configure_mesh()
             .x_desc("along the flow (um)")
             .y_desc("height (um)")
+            .x_label_formatter(&|v| fmt_num(*v))
+            .y_label_formatter(&|v| fmt_num(*v))
             .disable_mesh()
             .draw()
             .map_err(err)?;
