@@ -19,6 +19,8 @@ use crate::error::CliError;
 
 const NACL_MOLAR_MASS: f64 = 58.44; // g/mol, CRC Handbook
 const KCL_MOLAR_MASS: f64 = 74.55; // g/mol, CRC Handbook
+/// Budget from which a run without an archive grid gets a warning.
+const LONG_RUN: u64 = 200_000;
 
 /// Check a raw study.
 pub fn build(raw: &RawStudy) -> Result<(Study, Vec<StudyWarning>), CliError> {
@@ -581,6 +583,18 @@ fn read_optimizer(r: &mut Reader, n_objectives: usize) -> Result<OptimizerSettin
                 "one positive number per objective, in the objective's unit, in the order of objectives.list",
             ));
         }
+    }
+    if algorithm == AlgorithmChoice::Nsga2
+        && max_evaluations >= LONG_RUN
+        && archive_epsilon.is_none()
+    {
+        r.warn(
+            "optimizer",
+            "archive_epsilon",
+            format!(
+                "not set for a run of {max_evaluations} evaluations: the archive keeps every non-dominated design, so memory and front.csv grow with the front; set a grid per objective to bound them"
+            ),
+        );
     }
     if algorithm == AlgorithmChoice::Nsga2 && population % 2 == 1 {
         return Err(r.err(
