@@ -221,48 +221,49 @@ impl Cell {
     /// Solve the voltage balance at one point for the cell-pair voltage `u` (V).
     ///
     /// Returns zero current when `u` does not exceed the membrane potentials (no
-    /// desalination; the model does not run the cell backwards).
+    /// desalination; the model does not run the cell backwards). The unknown is the voltage
+    /// of the layer whose current is the flatter function of its voltage (on a plateau the
+    /// voltage is the well-conditioned variable); when the solution shows the other layer
+    /// to be the flatter one, the solve is repeated with the roles swapped, warm-started.
     pub fn solve(&self, p: &Point, u: f64, guess: &mut Guess) -> PointSolution {
         let cem_limits = p.cem.i_het <= p.aem.i_het;
-        let (prim, sec) = if cem_limits {
-            (&p.cem, &p.aem)
-        } else {
-            (&p.aem, &p.cem)
-        };
         let drive = (u - p.e_mem) / self.vt;
-        let (v_p, v_s, i) = if drive <= 0.0 {
+        let (v_cem, v_aem, i) = if drive <= 0.0 {
             (0.0, 0.0, 0.0)
         } else {
-            let inv_r_vt = p.r_ohm / self.vt;
-            let mut v_sec = guess.secondary;
-            let residual = |v: f64, v_sec: &mut f64| {
-                let (i, di) = prim.current(v);
-                let (vs, dis) = sec.voltage(i, *v_sec);
-                *v_sec = vs;
-                let a = 1.0 + i * p.inv_cc;
-                let b = 1.0 + i * p.inv_ca;
-                let f = p.e_mem / self.vt - u / self.vt
-                    + i * inv_r_vt
-                    + v
-                    + vs
-                    + 2.0 * (a.ln() + b.ln());
-                let df = 1.0 + di * (inv_r_vt + 1.0 / dis + 2.0 * (p.inv_cc / a + p.inv_ca / b));
-                (f, df)
+            // Start with the layer that was flatter at the previous point (or the limiting
+            // one at the first point).
+            let mut cem_primary = if guess.primary > 0.0 || guess.secondary > 0.0 {
+                let (_, dc) = p.cem.current(guess.primary);
+                let (_, da) = p.aem.current(guess.secondary);
+                dc <= da
+            } else {
+                cem_limits
             };
-            let (v, _) = newton_bracketed(
-                |v| residual(v, &mut v_sec),
-                0.0,
-                drive,
-                guess.primary,
-                1e-11 * (1.0 + drive),
-            );
-            let (i, _) = prim.current(v);
-            let (vs, _) = sec.voltage(i, v_sec);
-            (v, vs, i)
+            let mut g = if cem_primary {
+                (guess.primary, guess.secondary)
+            } else {
+                (guess.secondary, guess.primary)
+            };
+            let mut result = (0.0, 0.0, 0.0);
+            for _ in 0..2 {
+                let (prim, sec) = if cem_primary {
+                    (&p.cem, &p.aem)
+                } else {
+                    (&p.aem, &p.cem)
+                };
+                let (v, vs, i, dip, dis) = self.solve_with(p, prim, sec, drive, g);
+                result = if cem_primary { (v, vs, i) } else { (vs, v, i) };
+                if dis >= dip {
+                    break;
+                }
+                cem_primary = !cem_primary;
+                g = (vs, v);
+            }
+            result
         };
-        guess.primary = v_p;
-        guess.secondary = v_s;
-        let (v_cem, v_aem) = if cem_limits { (v_p, v_s) } else { (v_s, v_p) };
+        guess.primary = v_cem;
+        guess.secondary = v_aem;
         let k = &self.k;
         let ws_cem = water_splitting_share(v_cem, k.water_splitting_onset, k.water_splitting_scale);
         let ws_aem =
@@ -280,13 +281,61 @@ impl Cell {
             ws_aem,
             alpha: pat.alpha(v_pat),
             wavelength: pat.wavelength(v_pat).unwrap_or(0.0),
-            limiting: prim.i_het,
+            limiting: p.cem.i_het.min(p.aem.i_het),
             cem_limits,
         }
     }
 
+    /// Bracketed Newton solve of the balance in the voltage of `prim`, inverting `sec`.
+    /// Returns (v_prim, v_sec, i, di/dv_prim, di/dv_sec).
+    fn solve_with(
+        &self,
+        p: &Point,
+        prim: &Layer,
+        sec: &Layer,
+        drive: f64,
+        guess: (f64, f64),
+    ) -> (f64, f64, f64, f64, f64) {
+        let inv_r_vt = p.r_ohm / self.vt;
+        // Last evaluated (v, i, v_sec, di, dis).
+        let mut last = (f64::NAN, 0.0, guess.1, 0.0, 0.0);
+        let residual = |v: f64, last: &mut (f64, f64, f64, f64, f64)| {
+            let (i, di) = prim.current(v);
+            let (vs, dis) = sec.voltage(i, last.2);
+            *last = (v, i, vs, di, dis);
+            let a = 1.0 + i * p.inv_cc;
+            let b = 1.0 + i * p.inv_ca;
+            let f = i * inv_r_vt + v + vs + 2.0 * (a * b).ln() - drive;
+            let df = 1.0 + di * (inv_r_vt + 1.0 / dis + 2.0 * (p.inv_cc / a + p.inv_ca / b));
+            (f, df)
+        };
+        let (v, _) = newton_bracketed(
+            |v| residual(v, &mut last),
+            0.0,
+            drive,
+            guess.0,
+            1e-12 * (1.0 + drive),
+        );
+        if v != last.0 {
+            residual(v, &mut last);
+        }
+        (v, last.2, last.1, last.3, last.4)
+    }
+
+    /// The cell-pair voltage of a solved point from its layer voltages (the forward balance;
+    /// well conditioned also on a current plateau, where inverting i is not).
+    pub fn voltage_of(&self, p: &Point, s: &PointSolution) -> f64 {
+        let i = s.current_density;
+        p.e_mem
+            + i * p.r_ohm
+            + self.vt
+                * (s.v_cem
+                    + s.v_aem
+                    + 2.0 * ((1.0 + i * p.inv_cc).ln() + (1.0 + i * p.inv_ca).ln()))
+    }
+
     /// The cell-pair voltage that carries current density `i` at point `p` (the forward
-    /// direction of [`Cell::solve`]; used by tests and the current-voltage curve).
+    /// direction of [`Cell::solve`]; ill-conditioned on a plateau of either layer).
     pub fn voltage_at(&self, p: &Point, i: f64) -> f64 {
         let (vc, _) = p.cem.voltage(i, p.cem.onset());
         let (va, _) = p.aem.voltage(i, p.aem.onset());

@@ -401,7 +401,8 @@ fn integrate_once(
     let c_c_out = if streams.counter { c_c_at0 } else { c_c_end };
     Ok(ChannelResult {
         length_m: l,
-        c_d_out: y[0],
+        // A diluate emptied of salt may overshoot zero by the local error tolerance.
+        c_d_out: y[0].max(0.0),
         c_c_out,
         current_per_width: y[1],
         salt_current_per_width: y[2],

@@ -112,9 +112,9 @@ impl RomConstants {
             (
                 "overlimiting_conductance",
                 self.overlimiting_conductance,
-                0.0,
+                1e-3,
                 10.0,
-                "0 to 10",
+                "1e-3 to 10",
             ),
             (
                 "overlimiting_exponent",

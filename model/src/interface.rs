@@ -320,7 +320,13 @@ impl Layer {
         let a_min = self.a0.min(self.a0 + self.amp);
         let slope = self.gain * a_min;
         if slope <= 0.0 {
-            return (f64::INFINITY, 0.0);
+            // No overlimiting branch: only the classic branch carries current, below i_het.
+            let r = 1.0 - i / self.i_het;
+            return if r > 0.0 {
+                (-2.0 * r.ln(), 0.5 * self.i_het * r)
+            } else {
+                (f64::INFINITY, 0.0)
+            };
         }
         if self.amp == 0.0 && self.n == 1.0 {
             // Unpatterned, n = 1: i = i_het (1 - e^(-v/2)) + slope (v - v_c), v > v_c.
