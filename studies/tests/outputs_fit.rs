@@ -220,3 +220,34 @@ fn an_ill_posed_fit_is_refused_with_a_reason() {
     let e = fit::calibrate(&d, &study, &["onset".to_string()]).unwrap_err();
     assert!(e.to_string().contains("cannot be fitted"), "{e}");
 }
+
+#[test]
+fn the_binary_exits_2_on_bad_data_and_writes_nothing() {
+    let dir = tempfile::tempdir().unwrap();
+    let p = dir.path().join("bad.csv");
+    std::fs::write(
+        &p,
+        "curve,layer_voltage_V,current_density_A_m2\na,0.1,2\na,0.2,-1\n",
+    )
+    .unwrap();
+    let out = std::process::Command::new(env!("CARGO_BIN_EXE_stria"))
+        .arg("fit")
+        .arg(&p)
+        .arg("--study")
+        .arg(demo("quick.toml"))
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        err.contains("bad.csv:3")
+            && err.contains("current_density_A_m2")
+            && !err.contains("panicked"),
+        "{err}"
+    );
+    assert_eq!(
+        std::fs::read_dir(dir.path()).unwrap().count(),
+        1,
+        "nothing written"
+    );
+}

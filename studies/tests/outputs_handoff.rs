@@ -349,3 +349,22 @@ fn an_id_not_on_the_front_is_a_clear_error_and_nothing_is_written() {
     );
     assert!(!out.exists(), "nothing written");
 }
+
+#[test]
+fn the_binary_exits_2_with_one_clear_message_for_an_unknown_id() {
+    let dir = tempfile::tempdir().unwrap();
+    let ids = fixture::write_run(dir.path(), &["salt_removal_rate", "specific_energy"]);
+    let out = std::process::Command::new(env!("CARGO_BIN_EXE_stria"))
+        .arg("handoff")
+        .arg(dir.path())
+        .args(["--pick", &ids[1].to_string(), "--pick", "424242"])
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        err.contains("424242") && err.contains("front.csv") && !err.contains("panicked"),
+        "{err}"
+    );
+    assert!(!dir.path().join("handoff").exists());
+}
