@@ -237,6 +237,18 @@ pub fn readme(card: &CaseCard) -> String {
 /// `stria handoff DIR --pick ID [--pick ID ...] [--out DIR2]`.
 pub fn run(dir: &Path, picks: &[u64], out: Option<&Path>) -> Result<(), CliError> {
     let run = rundir::read(dir)?;
+    if run.study.baseline.membranes.pattern_side == model::PatternSide::Aem {
+        // the cards describe the patterned CEM interface (the model's profiles carry the CEM
+        // layer voltage); an AEM-only pattern would need the AEM layer's state
+        return Err(CliError::input(
+            dir.join("study.toml"),
+            None,
+            "membranes.pattern_side",
+            "hand-off cards describe a patterned cation-exchange membrane interface; this study \
+             patterns the anion-exchange membrane only",
+            "pattern_side = \"cem\" or \"both\" for `stria handoff`",
+        ));
+    }
     if picks.is_empty() {
         return Err(CliError::input(
             "command line",
