@@ -6,7 +6,8 @@ variables) and DTLZ2 (3 objectives, 12 variables), over several seeds.
 Hypervolume of both fronts is computed with moocore at the same reference point (1.1 in
 every objective); references.md gives the analytic fronts' values. Wall time: for stria the
 whole example process (start-up, run, CSV write); for pymoo only the `minimize` call (imports
-excluded), so the comparison does not favour stria.
+excluded), so the comparison does not favour stria. CPU time (user + system) is reported too:
+on a shared, loaded machine it is the steadier figure.
 
 Both use SBX (eta 20, probability 0.9) and polynomial mutation (eta 20, probability 1/n) with
 duplicate elimination (pymoo's default SBX eta is 15; it is set to 20 here to match).
@@ -17,6 +18,7 @@ Usage: python3 optimizer/bench/compare_pymoo.py [--seeds 5] [--out optimizer/ben
 
 import argparse
 import os
+import resource
 import statistics
 import subprocess
 import sys
@@ -55,6 +57,7 @@ def build():
 def ours(exe, name, seed, front):
     with tempfile.TemporaryDirectory() as d:
         out = os.path.join(d, "front.csv")
+        r0 = resource.getrusage(resource.RUSAGE_CHILDREN)
         t0 = time.perf_counter()
         subprocess.run(
             [exe, "--problem", name, "--evals", str(EVALS), "--seed", str(seed),
@@ -63,17 +66,21 @@ def ours(exe, name, seed, front):
             stderr=subprocess.DEVNULL,
         )
         wall = time.perf_counter() - t0
-        return np.loadtxt(out, delimiter=",", skiprows=1, ndmin=2), wall
+        r1 = resource.getrusage(resource.RUSAGE_CHILDREN)
+        cpu = (r1.ru_utime - r0.ru_utime) + (r1.ru_stime - r0.ru_stime)
+        return np.loadtxt(out, delimiter=",", skiprows=1, ndmin=2), wall, cpu
 
 
 def pymoo_run(name, seed):
     problem = PROBLEMS[name][0]()
     algo = NSGA2(pop_size=POP, crossover=SBX(eta=20, prob=0.9), mutation=PM(eta=20),
                  eliminate_duplicates=True)
+    c0 = time.process_time()
     t0 = time.perf_counter()
     res = minimize(problem, algo, ("n_eval", EVALS), seed=seed, verbose=False)
     wall = time.perf_counter() - t0
-    return np.asarray(res.F), wall
+    cpu = time.process_time() - c0
+    return np.asarray(res.F), wall, cpu
 
 
 def main():
@@ -86,16 +93,19 @@ def main():
     for name, (_, hv_exact) in PROBLEMS.items():
         m = 3 if name == "dtlz2" else 2
         ref = [1.1] * m
-        r = {"hv_ours": [], "hv_arch": [], "hv_py": [], "t_ours": [], "t_py": []}
+        r = {"hv_ours": [], "hv_arch": [], "hv_py": [], "t_ours": [], "t_py": [],
+             "c_ours": [], "c_py": []}
         for seed in range(1, args.seeds + 1):
-            f, t = ours(exe, name, seed, "population")
-            fa, _ = ours(exe, name, seed, "archive")
-            fp, tp = pymoo_run(name, seed)
+            f, t, c = ours(exe, name, seed, "population")
+            fa, _, _ = ours(exe, name, seed, "archive")
+            fp, tp, cp = pymoo_run(name, seed)
             r["hv_ours"].append(moocore.hypervolume(f, ref=ref))
             r["hv_arch"].append(moocore.hypervolume(fa, ref=ref))
             r["hv_py"].append(moocore.hypervolume(fp, ref=ref))
             r["t_ours"].append(t)
             r["t_py"].append(tp)
+            r["c_ours"].append(c)
+            r["c_py"].append(cp)
             print(f"{name} seed {seed}: HV ours {r['hv_ours'][-1]:.5f} (archive "
                   f"{r['hv_arch'][-1]:.5f}), pymoo {r['hv_py'][-1]:.5f}; "
                   f"time ours {t:.3f} s, pymoo {tp:.2f} s", file=sys.stderr)
@@ -108,8 +118,9 @@ def main():
         "min-max in brackets); analytic front HV from references.md.",
         "",
         "| problem | HV analytic | HV stria (final population) | HV stria (archive) | HV pymoo | "
-        "stria time (s) | pymoo time (s) | speed-up |",
-        "|---|---|---|---|---|---|---|---|",
+        "wall stria (s) | wall pymoo (s) | wall speed-up | CPU stria (s) | CPU pymoo (s) | "
+        "CPU speed-up |",
+        "|---|---|---|---|---|---|---|---|---|---|---|",
     ]
     for name, hv_exact, r in rows:
         def cell(v):
@@ -117,11 +128,13 @@ def main():
         lines.append(
             f"| {name} | {hv_exact} | {cell(r['hv_ours'])} | {cell(r['hv_arch'])} | "
             f"{cell(r['hv_py'])} | {mean(r['t_ours']):.3f} | {mean(r['t_py']):.2f} | "
-            f"{mean(r['t_py']) / mean(r['t_ours']):.0f}x |"
+            f"{mean(r['t_py']) / mean(r['t_ours']):.0f}x | {mean(r['c_ours']):.3f} | "
+            f"{mean(r['c_py']):.2f} | {mean(r['c_py']) / mean(r['c_ours']):.0f}x |"
         )
     lines += [
         "",
-        f"Machine: {os.cpu_count()} logical CPUs (shared); stria time is the whole example "
+        f"Machine: {os.cpu_count()} logical CPUs, shared with other work while measured "
+        f"(load average {os.getloadavg()[0]:.1f} at the end); stria time is the whole example "
         "process, pymoo time only its `minimize` call.",
     ]
     text = "\n".join(lines) + "\n"

@@ -94,6 +94,13 @@ impl Archive {
         self.members.iter().map(|e| e.objectives.clone()).collect()
     }
 
+    /// With two or three objectives after a batch insertion: the members' objectives in
+    /// ascending lexicographic order (third zero for two objectives).
+    pub(crate) fn sorted_objectives(&self) -> Option<impl Iterator<Item = [f64; 3]> + '_> {
+        (self.order.len() == self.members.len() && !self.members.is_empty())
+            .then(|| self.order.iter().map(|k| k.0))
+    }
+
     /// The epsilon grid, if any.
     pub fn epsilon(&self) -> Option<&[f64]> {
         self.epsilon.as_deref()
@@ -104,6 +111,8 @@ impl Archive {
         if !e.is_feasible() {
             return false;
         }
+        // The sort cache is only kept by batch insertion.
+        self.order.clear();
         match self.epsilon.clone() {
             None => self.insert_plain(e),
             Some(eps) => self.insert_epsilon(e, &eps),
@@ -171,18 +180,21 @@ impl Archive {
         }
         let mut ids: Vec<u64> = kept.iter().map(|k| k.1).collect();
         ids.sort_unstable();
-        let mut members = Vec::with_capacity(ids.len());
+        // Both lists ascend by id: keep members in place, then append the new survivors.
         let mut next = ids.iter().peekable();
-        for e in std::mem::take(&mut self.members)
-            .into_iter()
-            .chain(feasible.into_iter().cloned())
-        {
+        self.members.retain(|e| {
+            let keep = next.peek().is_some_and(|&&id| id == e.id);
+            if keep {
+                next.next();
+            }
+            keep
+        });
+        for e in feasible {
             if next.peek().is_some_and(|&&id| id == e.id) {
                 next.next();
-                members.push(e);
+                self.members.push(e.clone());
             }
         }
-        self.members = members;
         self.order = kept;
     }
 

@@ -74,44 +74,79 @@ fn hv2(pts: &[&[f64]], r: &[f64]) -> f64 {
 
 fn hv3(pts: &[&[f64]], r: &[f64]) -> f64 {
     let mut p: Vec<[f64; 3]> = pts.iter().map(|p| [p[0], p[1], p[2]]).collect();
-    p.sort_by(|a, b| a[2].total_cmp(&b[2]));
-    // Staircase of the (x, y) projections seen so far: x ascending, y descending. A sorted
-    // vector: the staircase of a front stays small, so shifting is cheaper than a tree.
+    p.sort_by(|a, b| a[0].total_cmp(&b[0]));
+    sweep3(p.into_iter(), r)
+}
+
+/// Hypervolume in two or three objectives of points already in ascending order of their first
+/// objective (third zero for two objectives), skipping those outside the reference box.
+pub(crate) fn hypervolume_sorted(points: impl Iterator<Item = [f64; 3]>, r: &[f64]) -> f64 {
+    match r.len() {
+        2 => {
+            let mut area = 0.0;
+            let mut cur = r[1];
+            for p in points.filter(|p| p[0] < r[0] && p[1] < r[1]) {
+                if p[1] < cur {
+                    area += (r[0] - p[0]) * (cur - p[1]);
+                    cur = p[1];
+                }
+            }
+            area
+        }
+        3 => sweep3(
+            points.filter(|p| p[0] < r[0] && p[1] < r[1] && p[2] < r[2]),
+            r,
+        ),
+        _ => unreachable!("only two or three objectives"),
+    }
+}
+
+/// The 3-D sweep along the first objective (points in ascending order of it, all inside the
+/// reference box), keeping the staircase of the (second, third) projections seen so far.
+fn sweep3(points: impl Iterator<Item = [f64; 3]>, r: &[f64]) -> f64 {
+    // Staircase: second objective ascending, third descending. A sorted vector: the
+    // staircase of a front stays small, so shifting is cheaper than a tree.
     let mut stairs: Vec<(f64, f64)> = Vec::new();
     let mut area = 0.0;
     let mut vol = 0.0;
-    for i in 0..p.len() {
-        let [px, py, _] = p[i];
+    let mut prev: Option<f64> = None;
+    for [ps, px, py] in points {
+        if let Some(s0) = prev {
+            vol += area * (ps - s0);
+        }
+        prev = Some(ps);
         // First entry with x >= px, and the entry before it (x < px).
         let at = stairs.partition_point(|q| q.0 < px);
         let dominated = stairs
             .get(at)
             .is_some_and(|q| q.0.total_cmp(&px).is_eq() && q.1 <= py)
             || (at > 0 && stairs[at - 1].1 <= py);
-        if !dominated {
-            let mut h = if at > 0 { stairs[at - 1].1 } else { r[1] };
-            let mut xcur = px;
-            let mut added = 0.0;
-            let mut end = at;
-            while end < stairs.len() {
-                let (qx, qy) = stairs[end];
-                added += (qx - xcur) * (h - py);
-                xcur = qx;
-                if qy >= py {
-                    h = qy;
-                    end += 1;
-                } else {
-                    break;
-                }
-            }
-            if end == stairs.len() {
-                added += (r[0] - xcur) * (h - py);
-            }
-            stairs.splice(at..end, [(px, py)]);
-            area += added;
+        if dominated {
+            continue;
         }
-        let znext = if i + 1 < p.len() { p[i + 1][2] } else { r[2] };
-        vol += area * (znext - p[i][2]);
+        let mut h = if at > 0 { stairs[at - 1].1 } else { r[2] };
+        let mut xcur = px;
+        let mut added = 0.0;
+        let mut end = at;
+        while end < stairs.len() {
+            let (qx, qy) = stairs[end];
+            added += (qx - xcur) * (h - py);
+            xcur = qx;
+            if qy >= py {
+                h = qy;
+                end += 1;
+            } else {
+                break;
+            }
+        }
+        if end == stairs.len() {
+            added += (r[1] - xcur) * (h - py);
+        }
+        stairs.splice(at..end, [(px, py)]);
+        area += added;
+    }
+    if let Some(s0) = prev {
+        vol += area * (r[0] - s0);
     }
     vol
 }

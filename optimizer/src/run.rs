@@ -2,7 +2,7 @@
 
 use crate::archive::Archive;
 use crate::doe::{self, InitialDesign};
-use crate::indicators::hypervolume_of;
+use crate::indicators::{hypervolume_of, hypervolume_sorted};
 use crate::nsga2::{self, Nsga2Config};
 use crate::problem::{evaluate_batch, Evaluated, Problem, Variable};
 use crate::scalarised::{self, ScalarisedConfig, ScalarisedState};
@@ -151,7 +151,8 @@ pub struct StepReport {
     pub new: Vec<Evaluated>,
     /// Share of this step's designs that are feasible (0 when none were evaluated).
     pub feasible_share: f64,
-    /// Hypervolume of the archive after this step (0 before a reference point exists).
+    /// Hypervolume after this step (0 before a reference point exists): of the archive, or
+    /// with NSGA-II and four or more objectives of the population's feasible members.
     pub hypervolume: f64,
 }
 
@@ -377,14 +378,30 @@ impl Run {
                 .collect();
             self.hv_reference = Some(r);
         }
+        // With four or more objectives the exact hypervolume costs O(n^(m-2) log n), too
+        // much for a large archive at every step: NSGA-II then reports the hypervolume of its
+        // population (the feasible members; dominated ones add nothing).
+        let population_hv =
+            self.num_objectives >= 4 && matches!(self.config.algorithm, Algorithm::Nsga2(_));
         let hv = match &self.hv_reference {
-            Some(r) => hypervolume_of(
-                self.archive
-                    .members()
+            Some(r) if population_hv => hypervolume_of(
+                self.population
                     .iter()
+                    .filter(|e| e.is_feasible())
                     .map(|e| e.objectives.as_slice()),
                 r,
             ),
+            Some(r) => match self.archive.sorted_objectives() {
+                // The archive keeps its points sorted (two or three objectives): no re-sort.
+                Some(sorted) => hypervolume_sorted(sorted, r),
+                None => hypervolume_of(
+                    self.archive
+                        .members()
+                        .iter()
+                        .map(|e| e.objectives.as_slice()),
+                    r,
+                ),
+            },
             None => 0.0,
         };
         self.hv_history.push(hv);
@@ -478,7 +495,7 @@ impl Run {
         self.hv_reference.as_deref()
     }
 
-    /// Archive hypervolume after each step so far.
+    /// Hypervolume after each step so far (see [`StepReport::hypervolume`]).
     pub fn hv_history(&self) -> &[f64] {
         &self.hv_history
     }
