@@ -222,6 +222,55 @@ fn check_case(c: &Value, unpatterned: bool) {
         .unwrap()
         .contains("0.1 of the bulk"));
     assert_eq!(c["boundary_conditions"].as_array().unwrap().len(), 5);
+
+    // the ROM's predictions are reproducible from the card's own conditions
+    let cond = model::interface::InterfaceConditions {
+        salt: model::Salt::NaCl,
+        temperature_k: t,
+        concentration_mol_m3: conc,
+        velocity_m_s: u,
+        gap_m: h,
+        position_m: num(c, "geometry.window_centre_from_inlet_m"),
+        pitch_m: pitch,
+        open_fraction: f,
+        membrane_transport_number: num(c, "electrolyte.membrane_transport_number"),
+        spacer: model::Spacer::None,
+        membrane: model::interface::MembraneKind::Cem,
+    };
+    let k = studies::study::Study::load(&fixture::demo("quick.toml"))
+        .unwrap()
+        .0
+        .constants;
+    let s = model::interface::solve(&cond, v, &k);
+    close(
+        num(c, "predictions.current_density_A_m2.value"),
+        s.current_density_a_m2,
+        1e-12,
+        "current",
+    );
+    close(a, s.active_area_fraction, 1e-12, "active area");
+    close(delta, s.boundary_layer_thickness_m, 1e-12, "delta");
+    close(
+        num(c, "operating_point.limiting_current_density_A_m2"),
+        s.limiting_current_density_a_m2,
+        1e-12,
+        "i_lim",
+    );
+    close(
+        num(c, "operating_point.heterogeneous_limit_A_m2"),
+        s.heterogeneous_limit_a_m2,
+        1e-12,
+        "i_het",
+    );
+    match s.vortex_wavelength_m {
+        Some(l) => close(
+            num(c, "predictions.vortex_wavelength_m.value"),
+            l,
+            1e-12,
+            "wavelength",
+        ),
+        None => assert!(c["predictions"]["vortex_wavelength_m"]["value"].is_null()),
+    }
 }
 
 #[test]
