@@ -396,27 +396,36 @@ fn killed_runs_resume_to_the_uninterrupted_result() {
     let dir = tempfile::tempdir().unwrap();
     let study = small_study(dir.path(), "s.toml", 480);
     let whole = dir.path().join("whole");
+    let t0 = std::time::Instant::now();
     run_to_end(&study, &whole, &["--threads", "2"]);
+    // Kill instants are drawn (seeded) within the length of an uninterrupted run, so that
+    // they fall mid-run on fast and slow machines alike.
+    let whole_ms = (t0.elapsed().as_millis() as u64).max(20);
 
-    let broken = dir.path().join("broken");
-    let mut rng = ChaCha8Rng::seed_from_u64(20261202);
-    let mut kills = 0;
-    for _ in 0..6 {
-        let mut child = Command::new(env!("CARGO_BIN_EXE_stria"))
+    let spawn = |out: &Path| {
+        Command::new(env!("CARGO_BIN_EXE_stria"))
             .args([
                 "run",
                 study.to_str().unwrap(),
                 "--out",
-                broken.to_str().unwrap(),
+                out.to_str().unwrap(),
                 "--threads",
                 "2",
             ])
             .stdin(Stdio::null())
             .stdout(Stdio::null())
-            .stderr(Stdio::null())
+            .stderr(Stdio::piped())
             .spawn()
-            .unwrap();
-        std::thread::sleep(Duration::from_millis(rng.random_range(20..250)));
+            .unwrap()
+    };
+    let broken = dir.path().join("broken");
+    let mut rng = ChaCha8Rng::seed_from_u64(20261202);
+    let mut kills = 0;
+    for _ in 0..5 {
+        let mut child = spawn(&broken);
+        std::thread::sleep(Duration::from_millis(
+            rng.random_range(whole_ms / 10..whole_ms / 2 + 1),
+        ));
         if child.try_wait().unwrap().is_none() {
             child.kill().unwrap(); // SIGKILL on Unix
             kills += 1;
@@ -435,6 +444,26 @@ fn killed_runs_resume_to_the_uninterrupted_result() {
         serde_json::from_slice(&read(&broken.join("summary.json"))).unwrap();
     assert_eq!(summary["evaluations"], 480);
     assert_eq!(summary["finished"], true);
+
+    // Ctrl-C (SIGINT): a clean pause with everything written and the resume command printed.
+    let paused = dir.path().join("paused");
+    let child = spawn(&paused);
+    std::thread::sleep(Duration::from_millis(whole_ms / 3));
+    let _ = Command::new("kill")
+        .args(["-INT", &child.id().to_string()])
+        .status();
+    let o = child.wait_with_output().unwrap();
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert_eq!(o.status.code(), Some(0), "{err}");
+    if err.contains("paused") {
+        assert!(err.contains("resume with: stria run"), "{err}");
+        let s: serde_json::Value =
+            serde_json::from_slice(&read(&paused.join("summary.json"))).unwrap();
+        assert_eq!(s["finished"], false);
+        assert_eq!(s["stop_reason"], "stopped on request");
+    }
+    run_to_end(&study, &paused, &["--threads", "2"]);
+    assert!(read(&whole.join("front.csv")) == read(&paused.join("front.csv")));
 }
 
 #[test]

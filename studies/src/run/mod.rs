@@ -13,7 +13,6 @@ mod progress;
 use std::collections::HashMap;
 use std::path::{Path, PathBuf};
 use std::sync::atomic::{AtomicBool, Ordering};
-use std::sync::Arc;
 use std::time::{Duration, Instant};
 
 use optimizer::{Run, StepReport, StopReason};
@@ -82,8 +81,30 @@ pub fn default_dir(study: &Path) -> PathBuf {
     PathBuf::from("runs").join(stem)
 }
 
+/// Raised by Ctrl-C; the run loop checks it between generations.
+static STOP: AtomicBool = AtomicBool::new(false);
+
+/// Install the Ctrl-C handler once per process. A second Ctrl-C leaves at once; every file is
+/// still whole (atomic writes), and a resume cuts the rows of the unfinished generation.
+fn install_ctrlc() {
+    static ONCE: std::sync::Once = std::sync::Once::new();
+    ONCE.call_once(|| {
+        let _ = ctrlc::set_handler(|| {
+            if STOP.swap(true, Ordering::SeqCst) {
+                std::process::exit(130);
+            }
+            eprintln!("\nstopping at the end of this generation (Ctrl-C again to leave at once)");
+        });
+    });
+}
+
 /// Run `stria run`.
 pub fn run(opts: &RunOptions) -> Result<Ended, CliError> {
+    // Installed first, so a Ctrl-C at any moment (even while the study loads) is a clean stop.
+    install_ctrlc();
+    STOP.store(false, Ordering::SeqCst);
+    let stop: &AtomicBool = &STOP;
+
     let (mut study, warnings) = Study::load(&opts.study)?;
     for w in &warnings {
         eprintln!("{w}");
@@ -156,19 +177,6 @@ pub fn run(opts: &RunOptions) -> Result<Ended, CliError> {
     };
     write_atomic(&rd.study(), study.to_resolved_toml().as_bytes())
         .map_err(|e| io_error("write", &rd.study(), e))?;
-
-    let stop = Arc::new(AtomicBool::new(false));
-    {
-        let stop = stop.clone();
-        // A second Ctrl-C leaves at once; every file is still whole (atomic writes), and a
-        // resume cuts the rows of the unfinished generation.
-        let _ = ctrlc::set_handler(move || {
-            if stop.swap(true, Ordering::SeqCst) {
-                std::process::exit(130);
-            }
-            eprintln!("\nstopping at the end of this generation (Ctrl-C again to leave at once)");
-        });
-    }
 
     let threads = opts.threads.unwrap_or_else(rayon::current_num_threads);
     let pool = rayon::ThreadPoolBuilder::new()
