@@ -273,3 +273,143 @@ pub fn read_fingerprint(text: &str) -> Option<String> {
         .strip_prefix("# fingerprint:")
         .map(|s| s.trim().to_string())
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn quick() -> String {
+        std::fs::read_to_string(Path::new(env!("CARGO_MANIFEST_DIR")).join("demo/quick.toml"))
+            .unwrap()
+    }
+
+    fn load(text: &str) -> Result<(Study, Vec<StudyWarning>), CliError> {
+        Study::from_text(Path::new("t.toml"), text, &[])
+    }
+
+    fn err(text: &str) -> String {
+        load(text).unwrap_err().to_string()
+    }
+
+    #[test]
+    fn resolved_study_reloads_to_the_same_study() {
+        let (s, _) = load(&quick()).unwrap();
+        let resolved = s.to_resolved_toml();
+        let (again, _) = load(&resolved).unwrap();
+        assert_eq!(s.baseline, again.baseline);
+        assert_eq!(s.constants, again.constants);
+        assert_eq!(s.fingerprint(), again.fingerprint());
+        assert_eq!(read_fingerprint(&resolved), Some(s.fingerprint()));
+        assert!(again.concentrate_gap_follows && again.concentrate_velocity_follows);
+    }
+
+    #[test]
+    fn budget_keys_do_not_change_the_fingerprint_but_others_do() {
+        let (mut s, _) = load(&quick()).unwrap();
+        let f = s.fingerprint();
+        s.set_budget(Some(99), Some(2.0));
+        assert_eq!(f, s.fingerprint());
+        let (t, _) = load(&quick().replace("seed = 7", "seed = 8")).unwrap();
+        assert_ne!(f, t.fingerprint());
+    }
+
+    #[test]
+    fn both_feed_keys_or_none_are_refused() {
+        let text = quick().replace("feed_g_L = 2.4", "feed_g_L = 2.4\nfeed_mol_m3 = 41");
+        assert!(err(&text).contains("both"), "{}", err(&text));
+        let text = quick().replace("feed_g_L = 2.4", "");
+        assert!(err(&text).contains("feed concentration"));
+    }
+
+    #[test]
+    fn custom_salt_needs_its_ionic_data_and_molar_mass_for_g_per_litre() {
+        let text = quick().replace("salt = \"NaCl\"", "salt = \"custom\"");
+        assert!(err(&text).contains("cation_diffusivity_m2_s"));
+        let text = quick().replace(
+            "salt = \"NaCl\"",
+            "salt = \"custom\"\ncation_diffusivity_m2_s = 1.3e-9\nanion_diffusivity_m2_s = 2.0e-9\ncation_conductivity_S_m2_mol = 5.0e-3\nanion_conductivity_S_m2_mol = 7.6e-3",
+        );
+        assert!(err(&text).contains("molar_mass_g_mol"), "{}", err(&text));
+        let ok = text.replace("feed_g_L = 2.4", "feed_mol_m3 = 41.0");
+        let (s, _) = load(&ok).unwrap();
+        assert!(matches!(s.baseline.water.salt, model::Salt::Custom { .. }));
+    }
+
+    #[test]
+    fn product_target_mode_needs_its_target() {
+        let text = quick().replace(
+            "length_mode = \"fixed\"",
+            "length_mode = \"product_target\"",
+        );
+        assert!(err(&text).contains("product_target_mol_m3"));
+        let ok = text.replace(
+            "length_mode = \"product_target\"",
+            "length_mode = \"product_target\"\nproduct_target_mol_m3 = 8.5",
+        );
+        let (s, _) = load(&ok).unwrap();
+        assert!(matches!(
+            s.baseline.operation.length_mode,
+            model::LengthMode::ProductTarget { .. }
+        ));
+    }
+
+    #[test]
+    fn voltage_variable_needs_voltage_drive_and_bounds_must_be_ordered() {
+        let text = quick()
+            .replace("cell_pair_voltage_V = 2.0", "cell_current_A = 10.0")
+            .replace(
+                "[objectives]",
+                "[variables.cell_pair_voltage]\nlower_V = 1.0\nupper_V = 3.0\n\n[objectives]",
+            );
+        assert!(err(&text).contains("driven by current"), "{}", err(&text));
+        let text = quick().replace("upper_um = 600.0", "upper_um = 20.0");
+        assert!(err(&text).contains("not above"), "{}", err(&text));
+    }
+
+    #[test]
+    fn outside_the_calibrated_range_is_a_warning_not_an_error() {
+        let (_, w) =
+            load(&quick().replace("temperature_C = 16.0", "temperature_C = 45.0")).unwrap();
+        assert_eq!(w.len(), 1);
+        assert!(
+            w[0].field == "water.temperature_C" && w[0].line.is_some(),
+            "{w:?}"
+        );
+    }
+
+    #[test]
+    fn design_at_moves_the_following_concentrate_stream_too() {
+        let text = quick().replace(
+            "[objectives]",
+            "[variables.gap]\nlower_mm = 0.3\nupper_mm = 0.8\n\n[objectives]",
+        );
+        let (s, _) = load(&text).unwrap();
+        let d = s.design_at(&[100e-6, 0.4, 0.05, 0.6e-3]);
+        assert_eq!(d.membranes.pitch_m, 100e-6);
+        assert_eq!(d.operation.concentrate_velocity_m_s, 0.05);
+        assert_eq!(d.channel.concentrate_gap_m, 0.6e-3);
+        let text = text.replace("gap_mm = 0.5", "gap_mm = 0.5\nconcentrate_gap_mm = 0.7");
+        let (s, _) = load(&text).unwrap();
+        assert_eq!(
+            s.design_at(&[100e-6, 0.4, 0.05, 0.6e-3])
+                .channel
+                .concentrate_gap_m,
+            0.7e-3
+        );
+    }
+
+    #[test]
+    fn rom_overrides_and_unknown_rom_keys() {
+        let text = quick().replace(
+            "[variables.pitch]",
+            "[rom]\nalpha_0 = 0.2\n\n[variables.pitch]",
+        );
+        let (s, _) = load(&text).unwrap();
+        assert_eq!(s.constants.alpha_0, 0.2);
+        let text = quick().replace(
+            "[variables.pitch]",
+            "[rom]\nalpha_zero = 0.2\n\n[variables.pitch]",
+        );
+        assert!(err(&text).contains("alpha_0"), "{}", err(&text));
+    }
+}
