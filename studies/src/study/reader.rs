@@ -147,6 +147,22 @@ impl<'a> Reader<'a> {
         let x = match &v {
             Value::Float(f) => *f.value(),
             Value::Integer(i) => *i.value() as f64,
+            Value::String(s)
+                if s.value()
+                    .split_whitespace()
+                    .next()
+                    .is_some_and(|w| w.parse::<f64>().is_ok()) =>
+            {
+                return Err(self.err(
+                    section,
+                    key,
+                    format!(
+                        "expected a bare number, found the text \"{}\"; the unit is part of the key name",
+                        s.value()
+                    ),
+                    format!("a number in {}, e.g. {key} = 0.5", spec.unit),
+                ))
+            }
             other => {
                 return Err(self.err(
                     section,
