@@ -90,6 +90,70 @@ pub struct ChannelResult {
     pub profiles: Option<Profiles>,
 }
 
+/// How closely (thermal units) a step end is put on a kink of the current (onset of
+/// electroconvection or of water splitting).
+const KINK_TOL: f64 = 1e-7;
+
+/// Fraction t of the trial step [s, s + h] at which `layer` (0 CEM, 1 AEM) reaches the kink
+/// voltage `kv`: regula falsi (Illinois variant) on point solves along the cubic Hermite
+/// interpolant of the trial step (the concentration barely changes over one step, so the
+/// interpolant's error hardly moves the crossing). Voltages v0 at t = 0 and v1 at t = 1.
+#[allow(clippy::too_many_arguments)]
+fn locate_kink(
+    rhs: &mut Rhs,
+    s: f64,
+    h: f64,
+    y: &State,
+    k0: &State,
+    y1: &State,
+    k1: &State,
+    layer: usize,
+    kv: f64,
+    v0: f64,
+    v1: f64,
+) -> f64 {
+    let herm = |t: f64| {
+        let t2 = t * t;
+        let t3 = t2 * t;
+        (2.0 * t3 - 3.0 * t2 + 1.0) * y[0]
+            + (t3 - 2.0 * t2 + t) * h * k0[0]
+            + (-2.0 * t3 + 3.0 * t2) * y1[0]
+            + (t3 - t2) * h * k1[0]
+    };
+    let (mut ta, mut fa) = (0.0, v0 - kv);
+    let (mut tb, mut fb) = (1.0, v1 - kv);
+    let mut side = 0;
+    let mut t = 0.5;
+    for _ in 0..40 {
+        t = (ta * fb - tb * fa) / (fb - fa);
+        if !(t > ta && t < tb) {
+            t = 0.5 * (ta + tb);
+        }
+        let sol = rhs.point(s + t * h, herm(t));
+        let v = if layer == 0 { sol.v_cem } else { sol.v_aem };
+        let f = v - kv;
+        if f.abs() < KINK_TOL || tb - ta < 1e-12 {
+            break;
+        }
+        if f * fa > 0.0 {
+            ta = t;
+            fa = f;
+            if side == -1 {
+                fb *= 0.5;
+            }
+            side = -1;
+        } else {
+            tb = t;
+            fb = f;
+            if side == 1 {
+                fa *= 0.5;
+            }
+            side = 1;
+        }
+    }
+    t
+}
+
 // Dormand-Prince 5(4) tableau.
 const C: [f64; 7] = [0.0, 0.2, 0.3, 0.8, 8.0 / 9.0, 1.0, 1.0];
 const A: [[f64; 6]; 7] = [
@@ -288,11 +352,23 @@ fn integrate_once(
     let mut y: State = [streams.c_d_in, 0.0, 0.0, 0.0, 0.0, 0.0];
     let mut s = 0.0;
     let (mut k0, _) = rhs.eval(s, &y);
-    let mut h: f64 = 0.1;
+    // The inlet layer develops over s of a few hundredths: start there.
+    let mut h: f64 = 0.03;
     let atol0 = rel_tol * 1e-6 * streams.c_d_in;
-    // Current per width that would remove all the salt at full efficiency, A/m: the scale
-    // of the current integral, whose absolute error is held to 1 % of rel_tol of it.
-    let current_scale = streams.c_d_in * rhs.flux / cell.xi0;
+    // The current integral is error-controlled in concentration units (its change times
+    // xi / (F h_d u_d) is the concentration change), so both carry the same accuracy.
+    let to_conc = cell.xi0 / rhs.flux;
+    // Layer voltages at the start of the step (kink detection), and consecutive rejections.
+    let (mut v_start_cem, mut v_start_aem) = (0.0f64, 0.0f64);
+    let mut rejected = 0u32;
+    let mut en_prev: f64 = 1e-4;
+    let mut landing = false;
+    let mut h_before_landing = 0.0;
+    let kinks = [
+        cell.k.onset_voltage,
+        cell.k.water_splitting_onset,
+        cell.k.water_splitting_onset_aem,
+    ];
     let mut steps = 0u32;
     let (mut max_v_cem, mut max_v_aem, mut max_ws) = (0.0f64, 0.0f64, 0.0f64);
     let mut end_s = 1.0;
@@ -306,8 +382,7 @@ fn integrate_once(
         h = h.min(1.0 - s);
         let (y_new, k_new, err, sol) = dp_step(&mut rhs, s, &y, &k0, h);
         let sc0 = atol0 + rel_tol * y[0].abs().max(y_new[0].abs());
-        let sc1 = rel_tol * (1e-2 * current_scale + y[1].abs().max(y_new[1].abs()));
-        let en = (err[0].abs() / sc0).max(err[1].abs() / sc1);
+        let en = (err[0].abs() / sc0).max(err[1].abs() * to_conc / sc0);
         if !en.is_finite() || y_new.iter().any(|v| !v.is_finite()) {
             if h < 1e-12 {
                 return Err(ModelError::Numerical(
@@ -317,8 +392,41 @@ fn integrate_once(
             h *= 0.25;
             continue;
         }
+        // A layer crossing its onset (or a water-splitting onset) makes the current kink,
+        // and no error estimate holds across a kink (a step across one can even pass the
+        // test). Locate the crossing (point solves along the Hermite interpolant of the
+        // trial step) and end the step exactly there, so every step sees a smooth
+        // right-hand side.
+        if !landing {
+            let mut best: Option<f64> = None;
+            for (layer, (v0, v1)) in [(v_start_cem, sol.v_cem), (v_start_aem, sol.v_aem)]
+                .into_iter()
+                .enumerate()
+            {
+                for kv in kinks {
+                    if (v0 - kv) * (v1 - kv) < 0.0 && (v0 - kv).abs() > 1e-4 {
+                        let t =
+                            locate_kink(&mut rhs, s, h, &y, &k0, &y_new, &k_new, layer, kv, v0, v1);
+                        best = Some(best.map_or(t, |b: f64| b.min(t)));
+                    }
+                }
+            }
+            if let Some(t) = best {
+                h_before_landing = h * (0.9 * en.max(1e-10).powf(-0.2)).clamp(0.2, 1.0);
+                h *= t.max(1e-6);
+                landing = true;
+                continue;
+            }
+        }
         if en > 1.0 {
-            h *= (0.9 * en.powf(-0.2)).max(0.2);
+            rejected += 1;
+            landing = false;
+            let factor = if rejected > 1 {
+                0.3
+            } else {
+                (0.9 * en.powf(-0.2)).max(0.2)
+            };
+            h *= factor;
             if h < 1e-12 {
                 return Err(ModelError::Numerical(
                     "step size underflow along the channel".into(),
@@ -372,6 +480,11 @@ fn integrate_once(
             }
         }
         steps += 1;
+        rejected = 0;
+        let landed = landing;
+        landing = false;
+        v_start_cem = sol_acc.v_cem;
+        v_start_aem = sol_acc.v_aem;
         y = y_acc;
         k0 = k_acc;
         s = s_acc;
@@ -384,7 +497,16 @@ fn integrate_once(
         if s >= 1.0 {
             done = true;
         }
-        h *= (0.9 * en.max(1e-10).powf(-0.2)).min(5.0);
+        // Step-size control with the PI term of Hairer, Norsett and Wanner (Solving ODEs I,
+        // II.4, DOPRI5: beta = 0.04), which damps the accept/reject oscillation.
+        let en_c = en.max(1e-10);
+        if landed {
+            // The step was cut to a kink: restart the controller from the step before.
+            h = h_before_landing;
+        } else {
+            h *= (0.9 * en_c.powf(-0.17) * en_prev.powf(0.04)).clamp(0.2, 5.0);
+            en_prev = en_c.max(1e-4);
+        }
     }
     stats.point_solves += rhs.evaluations as u64;
     if let End::Target(target) = end {
