@@ -93,7 +93,7 @@ fn sbx(
         let y2 = p1[i].max(p2[i]);
         let e1 = eta + 1.0;
         let betaq = |beta: f64| {
-            let alpha = 2.0 - beta.powf(-e1);
+            let alpha = 2.0 - pow(beta, -e1);
             if u <= 1.0 / alpha {
                 (u * alpha).powf(1.0 / e1)
             } else {
@@ -129,15 +129,54 @@ fn polynomial_mutation(x: &mut [f64], vars: &[Variable], eta: f64, pm: f64, rng:
         let d2 = (yu - y) / (yu - yl);
         let p = 1.0 / (eta + 1.0);
         let dq = if u <= 0.5 {
-            let val = 2.0 * u + (1.0 - 2.0 * u) * (1.0 - d1).powf(eta + 1.0);
+            let val = 2.0 * u + (1.0 - 2.0 * u) * pow(1.0 - d1, eta + 1.0);
             val.powf(p) - 1.0
         } else {
-            let val = 2.0 * (1.0 - u) + 2.0 * (u - 0.5) * (1.0 - d2).powf(eta + 1.0);
+            let val = 2.0 * (1.0 - u) + 2.0 * (u - 0.5) * pow(1.0 - d2, eta + 1.0);
             1.0 - val.powf(p)
         };
         x[i] = (y + dq * (yu - yl)).clamp(yl, yu);
     }
 }
+
+/// `x^e`, by repeated multiplication when `e` is a small whole number (the usual distribution
+/// indices are), otherwise `powf`.
+fn pow(x: f64, e: f64) -> f64 {
+    if e.fract() == 0.0 && e.abs() <= 64.0 {
+        x.powi(e as i32)
+    } else {
+        x.powf(e)
+    }
+}
+
+/// A fast, deterministic hasher for the duplicate check (the set is only queried, never
+/// iterated, so its order cannot leak into results).
+#[derive(Default)]
+struct BitsHasher(u64);
+
+impl std::hash::Hasher for BitsHasher {
+    fn finish(&self) -> u64 {
+        self.0
+    }
+    fn write(&mut self, bytes: &[u8]) {
+        // A `[u64]` is hashed as its bytes in one call: take them eight at a time.
+        let mut chunks = bytes.chunks_exact(8);
+        for c in &mut chunks {
+            self.write_u64(u64::from_le_bytes(c.try_into().expect("eight bytes")));
+        }
+        for b in chunks.remainder() {
+            self.write_u64(u64::from(*b));
+        }
+    }
+    fn write_u64(&mut self, v: u64) {
+        self.0 = (self.0.rotate_left(5) ^ v).wrapping_mul(0x517c_c1b7_2722_0a95);
+    }
+    fn write_usize(&mut self, v: usize) {
+        self.write_u64(v as u64);
+    }
+}
+
+type Seen = HashSet<Vec<u64>, std::hash::BuildHasherDefault<BitsHasher>>;
 
 fn key(x: &[f64]) -> Vec<u64> {
     x.iter().map(|v| v.to_bits()).collect()
@@ -168,7 +207,8 @@ pub(crate) fn offspring(
     let pm = cfg
         .mutation_probability
         .unwrap_or(1.0 / vars.len().max(1) as f64);
-    let mut seen: HashSet<Vec<u64>> = pop.iter().map(|e| key(&e.x)).collect();
+    let mut seen = Seen::with_capacity_and_hasher(2 * (n + count), Default::default());
+    seen.extend(pop.iter().map(|e| key(&e.x)));
     let mut out: Vec<Vec<f64>> = Vec::with_capacity(count);
     let mut tries = 0usize;
     let max_tries = 20 * count + 100;

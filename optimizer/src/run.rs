@@ -281,6 +281,17 @@ impl Run {
                 run.version
             )));
         }
+        let consistent = matches!(
+            (&run.config.algorithm, &run.state),
+            (Algorithm::Nsga2(_), AlgoState::Nsga2)
+                | (Algorithm::Scalarised(_), AlgoState::Scalarised(_))
+                | (Algorithm::Screening(_), AlgoState::Screening(_))
+        );
+        if !consistent {
+            return Err(ConfigError::State(
+                "the algorithm's progress does not match its configuration".into(),
+            ));
+        }
         Ok(run)
     }
 
