@@ -2,9 +2,13 @@
 
 use std::path::Path;
 
+use std::time::Instant;
+
 use model::Options;
+use optimizer::Run;
 
 use crate::error::CliError;
+use crate::run::problem::{run_config, StudyProblem};
 use crate::study::Study;
 
 /// The model's validity warnings (and failures) at the baseline and at each variable's lower
@@ -57,14 +61,39 @@ pub fn bound_warnings(study: &Study) -> Vec<String> {
     out
 }
 
+fn duration(s: f64) -> String {
+    if s < 120.0 {
+        format!("{s:.0} s")
+    } else if s < 7200.0 {
+        format!("{:.0} min", s / 60.0)
+    } else {
+        format!("{:.1} h", s / 3600.0)
+    }
+}
+
 /// Run `stria check STUDY`: the resolved study on stdout, warnings and the verdict on stderr.
 pub fn run(path: &Path) -> Result<(), CliError> {
     let (study, warnings) = Study::load(path)?;
+    if !study.variables.is_empty() && !study.objectives.is_empty() {
+        // The optimiser's own checks (e.g. the size limit of a Sobol design), before any run.
+        let problem = StudyProblem { study: &study };
+        Run::new(run_config(&study), &problem).map_err(|e| {
+            CliError::input(
+                path,
+                None,
+                "optimizer",
+                format!("the optimiser cannot run these settings: {e}"),
+                "see docs/study-reference.md, section [optimizer]",
+            )
+        })?;
+    }
     print!("{}", study.to_resolved_toml());
     for w in &warnings {
         eprintln!("{w}");
     }
+    let started = Instant::now();
     let model_warnings = bound_warnings(&study);
+    let per_eval = started.elapsed().as_secs_f64() / (1 + 2 * study.variables.len()) as f64;
     for w in &model_warnings {
         eprintln!("model warning: {w}");
     }
@@ -78,5 +107,13 @@ pub fn run(path: &Path) -> Result<(), CliError> {
         warnings.len(),
         model_warnings.len()
     );
+    if !study.variables.is_empty() {
+        eprintln!(
+            "one evaluation took about {:.2} ms here: {} evaluations are about {} of model time on one thread (shared among the threads of `stria run`, plus file writes each generation)",
+            per_eval * 1e3,
+            study.optimizer.max_evaluations,
+            duration(per_eval * study.optimizer.max_evaluations as f64)
+        );
+    }
     Ok(())
 }
