@@ -41,6 +41,10 @@ pub fn spreading_length(pitch_m: f64, open_fraction: f64) -> f64 {
     pitch_m * (1.0 / (0.5 * std::f64::consts::PI * open_fraction).sin()).ln() / std::f64::consts::PI
 }
 
+/// Ratio of the slopes di/dv of the two layers beyond which the flatter layer's voltage is
+/// taken as the unknown (for conditioning on a current plateau).
+const CONDITIONING: f64 = 10.0;
+
 /// Everything about one cell pair that is constant along the channel.
 #[derive(Debug, Clone, Copy)]
 pub struct Cell {
@@ -231,12 +235,21 @@ impl Cell {
         let (v_cem, v_aem, i) = if drive <= 0.0 {
             (0.0, 0.0, 0.0)
         } else {
-            // Start with the layer that was flatter at the previous point (or the limiting
-            // one at the first point).
+            // Start with the layer that was clearly flatter at the previous point (on a
+            // plateau the voltage is the well-conditioned unknown); when neither is clearly
+            // flatter, with the one whose law is dearer to invert (the patterned one), so the
+            // cheap plain law is the one inverted in the loop.
+            let cem_dear = !p.cem.is_plain() || p.aem.is_plain();
             let mut cem_primary = if guess.primary > 0.0 || guess.secondary > 0.0 {
                 let (_, dc) = p.cem.current(guess.primary);
                 let (_, da) = p.aem.current(guess.secondary);
-                dc <= da
+                if dc * CONDITIONING < da {
+                    true
+                } else if da * CONDITIONING < dc {
+                    false
+                } else {
+                    cem_dear
+                }
             } else {
                 cem_limits
             };
@@ -254,7 +267,7 @@ impl Cell {
                 };
                 let (v, vs, i, dip, dis) = self.solve_with(p, prim, sec, drive, g);
                 result = if cem_primary { (v, vs, i) } else { (vs, v, i) };
-                if dis >= dip {
+                if dis * CONDITIONING >= dip {
                     break;
                 }
                 cem_primary = !cem_primary;
@@ -314,7 +327,7 @@ impl Cell {
             0.0,
             drive,
             guess.0,
-            1e-12 * (1.0 + drive),
+            1e-10 * (1.0 + drive),
         );
         if v != last.0 {
             residual(v, &mut last);

@@ -76,15 +76,34 @@ pub fn water_splitting_share(v: f64, onset: f64, scale: f64) -> f64 {
     }
 }
 
-/// erf(b) - erf(a) for a <= b without cancellation in the tails.
-#[inline]
-fn erf_diff(a: f64, b: f64) -> f64 {
-    if a >= 0.0 {
-        libm::erfc(a) - libm::erfc(b)
-    } else if b <= 0.0 {
-        libm::erfc(-b) - libm::erfc(-a)
-    } else {
-        libm::erf(b) - libm::erf(a)
+/// erf at a fixed lower point a, kept in the form that avoids cancellation in the tails:
+/// erfc(a) when a >= 0, erfc(-a) when a < 0 (and erf(a) for the mixed case).
+#[derive(Debug, Clone, Copy, PartialEq)]
+struct ErfAt {
+    a: f64,
+    tail: f64,
+    erf: f64,
+}
+
+impl ErfAt {
+    fn new(a: f64) -> Self {
+        ErfAt {
+            a,
+            tail: libm::erfc(a.abs()),
+            erf: libm::erf(a),
+        }
+    }
+
+    /// erf(b) - erf(a) for b >= a, one error-function call.
+    #[inline]
+    fn diff_to(&self, b: f64) -> f64 {
+        if self.a >= 0.0 {
+            self.tail - libm::erfc(b)
+        } else if b <= 0.0 {
+            libm::erfc(-b) - self.tail
+        } else {
+            libm::erf(b) - self.erf
+        }
     }
 }
 
@@ -118,8 +137,8 @@ pub struct Layer {
     sigma: f64,
     /// Prefactor of the lock-in integral: (v_c sigma / q) sqrt(pi/2) exp(z0/q + sigma^2/(2 q^2)).
     j_pref: f64,
-    /// erf argument at v_c.
-    b_c: f64,
+    /// Error function at the argument belonging to v_c.
+    erf_c: ErfAt,
     /// Vortex wavelength at onset a_lambda delta, m.
     lambda0: f64,
     /// Classic current at onset, A/m^2.
@@ -178,15 +197,23 @@ impl Surface {
         };
         let lambda0 = k.wavelength_prefactor * delta_m;
         let (q, sigma, v_c) = (k.wavelength_exponent, k.lockin_width, k.onset_voltage);
-        let (z0, j_pref, b_c) = if self.amp != 0.0 {
+        let (z0, j_pref, erf_c) = if self.amp != 0.0 {
             let z0 = (self.pitch_m / lambda0).ln();
             let j_pref = v_c * sigma / q
                 * (0.5 * std::f64::consts::PI).sqrt()
                 * (z0 / q + sigma * sigma / (2.0 * q * q)).exp();
             let b_c = -(z0 + sigma * sigma / q) / (sigma * std::f64::consts::SQRT_2);
-            (z0, j_pref, b_c)
+            (z0, j_pref, ErfAt::new(b_c))
         } else {
-            (0.0, 0.0, 0.0)
+            (
+                0.0,
+                0.0,
+                ErfAt {
+                    a: 0.0,
+                    tail: 1.0,
+                    erf: 0.0,
+                },
+            )
         };
         let i_het = i_lim * phi;
         Layer {
@@ -203,7 +230,7 @@ impl Surface {
             q,
             sigma,
             j_pref,
-            b_c,
+            erf_c,
             lambda0,
             i_onset: i_het * self.onset_factor,
         }
@@ -221,6 +248,12 @@ impl Layer {
         k: &RomConstants,
     ) -> Self {
         Surface::new(pitch_m, open_fraction, k).layer(i_lim, delta_m)
+    }
+
+    /// True for a law without pattern-dependent lock-in (cheap to evaluate and invert).
+    #[inline]
+    pub fn is_plain(&self) -> bool {
+        self.amp == 0.0
     }
 
     /// Onset voltage v_c, thermal units.
@@ -265,7 +298,7 @@ impl Layer {
         let z = self.z0 - self.q * s;
         let alpha = self.a0 + self.amp * (-z * z / (2.0 * self.sigma * self.sigma)).exp();
         let b = (-z - self.sigma * self.sigma / self.q) / (self.sigma * std::f64::consts::SQRT_2);
-        (alpha, base + self.amp * self.j_pref * erf_diff(self.b_c, b))
+        (alpha, base + self.amp * self.j_pref * self.erf_c.diff_to(b))
     }
 
     /// Overlimiting (electroconvective) current density at `v`, A/m^2 (0 at or below onset).
@@ -337,18 +370,19 @@ impl Layer {
             let vg = guess.clamp(self.v_c, hi);
             let mut v = (self.v_c + (i - self.i_het * (1.0 - (-0.5 * vg).exp())) / slope)
                 .clamp(self.v_c, hi);
+            let mut d = slope;
             for _ in 0..50 {
                 let e = (-0.5 * v).exp();
                 let f = self.i_het * (1.0 - e) + slope * (v - self.v_c) - i;
-                let d = 0.5 * self.i_het * e + slope;
+                d = 0.5 * self.i_het * e + slope;
                 let next = (v - f / d).clamp(self.v_c, hi);
                 let step = (next - v).abs();
                 v = next;
                 if step <= 1e-12 * (1.0 + v) {
-                    return (v, 0.5 * self.i_het * (-0.5 * v).exp() + slope);
+                    break;
                 }
             }
-            return (v, 0.5 * self.i_het * (-0.5 * v).exp() + slope);
+            return (v, d);
         }
         let v_hi = self.v_c + ((i - self.i_onset) / slope).powf(1.0 / self.n) * 1.000_001 + 1e-9;
         let (v, _) = newton_bracketed(
