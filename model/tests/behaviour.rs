@@ -1,0 +1,238 @@
+//! Behaviour of the public API: validity warnings (model.md section 8), input errors, the
+//! current-voltage curve, profiles and the JSON schema of `stria eval --json`.
+
+use model::*;
+
+fn eval(d: &Design) -> Evaluation {
+    evaluate(d, &RomConstants::default(), &Options::default()).unwrap()
+}
+
+fn warned(e: &Evaluation, quantity: &str) -> Option<Warning> {
+    e.warnings.iter().find(|w| w.quantity == quantity).cloned()
+}
+
+#[test]
+fn demo_has_no_warnings() {
+    assert!(eval(&Design::demo()).warnings.is_empty());
+}
+
+#[test]
+fn warnings_name_quantity_value_and_bound() {
+    let mut d = Design::demo();
+    d.channel.gap_m = 2e-3;
+    d.operation.velocity_m_s = 1.5;
+    let w = warned(&eval(&d), "reynolds").expect("turbulent-range warning");
+    assert!(w.value > w.bound && w.bound == validity::RE_LAMINAR_MAX);
+
+    let mut d = Design::demo();
+    d.membranes.pitch_m = 5e-6;
+    let w = warned(&eval(&d), "pitch_m").expect("pitch warning");
+    assert_eq!(w.value, 5e-6);
+
+    let mut d = Design::demo();
+    d.membranes.open_fraction = 0.05;
+    let w = warned(&eval(&d), "open_fraction").expect("open fraction warning");
+    assert_eq!(w.bound, validity::OPEN_FRACTION_MIN);
+
+    let mut d = Design::demo();
+    d.operation.drive = Drive::Voltage {
+        cell_pair_voltage_v: 12.0,
+    };
+    let e = eval(&d);
+    assert!(
+        warned(&e, "layer_voltage_thermal").is_some(),
+        "{:?}",
+        e.warnings
+    );
+    let ws = warned(&e, "water_splitting_share").expect("water splitting warning");
+    assert!(ws.value > 0.0 && ws.message.contains("pH"));
+    assert!(e.performance.current_efficiency < 0.93);
+
+    let mut d = Design::demo();
+    d.water.feed_concentration_mol_m3 = 700.0;
+    d.water.concentrate_feed_concentration_mol_m3 = 700.0;
+    assert!(warned(&eval(&d), "feed_concentration_mol_m3").is_some());
+
+    let mut d = Design::demo();
+    d.channel.length_m = 8.0;
+    assert!(warned(&eval(&d), "outlet_concentration_mol_m3").is_some());
+}
+
+#[test]
+fn bad_inputs_are_errors_naming_the_field() {
+    let k = RomConstants::default();
+    let o = Options::default();
+    let mut d = Design::demo();
+    d.channel.gap_m = -1.0;
+    match evaluate(&d, &k, &o) {
+        Err(ModelError::Input { field, .. }) => assert_eq!(field, "gap_m"),
+        other => panic!("{other:?}"),
+    }
+    let mut d = Design::demo();
+    d.membranes.cem_transport_number = 0.3; // below the solution's t+ of NaCl
+    assert!(matches!(
+        evaluate(&d, &k, &o),
+        Err(ModelError::Input {
+            field: "cem_transport_number",
+            ..
+        })
+    ));
+    let bad = RomConstants {
+        overlimiting_exponent: 0.5,
+        ..RomConstants::default()
+    };
+    assert!(matches!(
+        evaluate(&Design::demo(), &bad, &o),
+        Err(ModelError::Input {
+            field: "overlimiting_exponent",
+            ..
+        })
+    ));
+}
+
+#[test]
+fn iv_curve_is_monotone_and_zero_below_membrane_potential() {
+    let d = Design::demo();
+    let volts: Vec<f64> = (0..80).map(|j| 0.05 * j as f64).collect();
+    let iv = iv_curve(&d, &RomConstants::default(), &volts);
+    assert_eq!(iv.len(), volts.len());
+    assert_eq!(iv[0].current_density_a_m2, 0.0);
+    for w in iv.windows(2) {
+        assert!(w[1].current_density_a_m2 > w[0].current_density_a_m2);
+        assert!(w[1].cem_layer_voltage_thermal >= w[0].cem_layer_voltage_thermal);
+    }
+}
+
+#[test]
+fn profiles_cover_the_channel() {
+    let o = Options {
+        profiles: true,
+        ..Options::default()
+    };
+    let e = evaluate(&Design::demo(), &RomConstants::default(), &o).unwrap();
+    let p = e.profiles.unwrap();
+    assert_eq!(p.x_m[0], 0.0);
+    assert!((p.x_m.last().unwrap() - 0.45).abs() < 1e-12);
+    assert!(p.x_m.windows(2).all(|w| w[1] > w[0]));
+    assert!(p.diluate_mol_m3.windows(2).all(|w| w[1] <= w[0]));
+    let n = p.x_m.len();
+    for v in [
+        &p.concentrate_mol_m3,
+        &p.current_density_A_m2,
+        &p.limiting_current_density_A_m2,
+        &p.active_area_fraction,
+        &p.cem_layer_voltage_thermal,
+    ] {
+        assert_eq!(v.len(), n);
+    }
+    assert!(
+        (p.diluate_mol_m3.last().unwrap() - e.performance.outlet_concentration_mol_m3).abs()
+            < 1e-12
+    );
+}
+
+#[test]
+fn json_has_the_eval_schema_fields() {
+    // studies.md, `stria eval --json`.
+    let v = serde_json::to_value(eval(&Design::demo())).unwrap();
+    let schema: [(&str, &[&str]); 5] = [
+        (
+            "inputs",
+            &[
+                "salt",
+                "temperature_K",
+                "feed_concentration_mol_m3",
+                "gap_m",
+                "length_m",
+                "width_m",
+                "velocity_m_s",
+                "spacer",
+                "pitch_m",
+                "open_fraction",
+                "cell_pair_voltage_V",
+                "cem_transport_number",
+                "aem_transport_number",
+            ],
+        ),
+        (
+            "properties",
+            &[
+                "salt_diffusivity_m2_s",
+                "cation_transport_number",
+                "density_kg_m3",
+                "dynamic_viscosity_Pa_s",
+                "kinematic_viscosity_m2_s",
+                "conductivity_S_m",
+                "debye_length_m",
+                "thermal_voltage_V",
+            ],
+        ),
+        (
+            "hydraulics",
+            &[
+                "hydraulic_diameter_m",
+                "reynolds",
+                "schmidt",
+                "pressure_drop_Pa",
+            ],
+        ),
+        (
+            "transfer",
+            &[
+                "sherwood_mean",
+                "boundary_layer_thickness_mean_m",
+                "limiting_current_density_feed_A_m2",
+                "limiting_membrane",
+            ],
+        ),
+        (
+            "performance",
+            &[
+                "outlet_concentration_mol_m3",
+                "concentrate_outlet_concentration_mol_m3",
+                "water_recovery",
+                "salt_removal_fraction",
+                "mean_current_density_A_m2",
+                "cell_current_A",
+                "diluate_flow_m3_s",
+                "current_efficiency",
+                "electrical_energy_kWh_m3",
+                "pumping_energy_kWh_m3",
+                "specific_energy_kWh_m3",
+                "thermodynamic_minimum_kWh_m3",
+                "active_area_fraction",
+                "vortex_wavelength_m",
+            ],
+        ),
+    ];
+    for (section, keys) in schema {
+        for k in keys {
+            assert!(v[section].get(*k).is_some(), "{section}.{k} missing");
+        }
+    }
+    assert!(v["warnings"].is_array());
+    // Round trip.
+    let back: Evaluation = serde_json::from_value(v).unwrap();
+    assert_eq!(back.inputs.salt, "NaCl");
+}
+
+#[test]
+fn counter_current_and_spacers_evaluate() {
+    let mut d = Design::demo();
+    d.operation.flow = FlowArrangement::CounterCurrent;
+    let c = eval(&d);
+    let co = eval(&Design::demo());
+    assert!(
+        (c.performance.salt_removal_fraction - co.performance.salt_removal_fraction).abs() < 0.2
+    );
+    let mut d = Design::demo();
+    d.channel.spacer = Spacer::SchockMiquel {
+        porosity: 0.85,
+        shadow_factor: 1.2,
+    };
+    d.operation.velocity_m_s = 0.1;
+    d.operation.concentrate_velocity_m_s = 0.1;
+    let s = eval(&d);
+    assert_eq!(s.inputs.spacer, "schock_miquel");
+    assert!(s.performance.pumping_energy_kWh_m3 > co.performance.pumping_energy_kWh_m3);
+}
