@@ -365,20 +365,39 @@ fn steps(run: &mut Run, p: &dyn Problem, k: usize) {
     }
 }
 
+/// DTLZ2 that takes at least 100 microseconds an evaluation, so that batches are evaluated on
+/// the thread pool (cheaper batches run on the calling thread).
+struct SlowDtlz2;
+impl Problem for SlowDtlz2 {
+    fn variables(&self) -> Vec<Variable> {
+        Dtlz2 { m: 3, n: 12 }.variables()
+    }
+    fn num_objectives(&self) -> usize {
+        3
+    }
+    fn num_constraints(&self) -> usize {
+        0
+    }
+    fn evaluate(&self, x: &[f64]) -> Result<Outcome, String> {
+        std::thread::sleep(std::time::Duration::from_micros(100));
+        Dtlz2 { m: 3, n: 12 }.evaluate(x)
+    }
+}
+
 #[test]
 fn same_front_for_one_and_two_threads() {
     // Source: determinism requirement (every random number drawn before the parallel
     // evaluation); compared bit for bit through the serialised state.
-    let p = Dtlz2 { m: 3, n: 12 };
     let go = |threads: usize| {
         let pool = rayon::ThreadPoolBuilder::new()
             .num_threads(threads)
             .build()
             .unwrap();
         pool.install(|| {
-            let config = RunConfig::new(Algorithm::Nsga2(Nsga2Config::default()), 21, 3000);
-            let mut run = Run::new(config, &p).unwrap();
-            steps(&mut run, &p, 30);
+            let config = RunConfig::new(Algorithm::Nsga2(Nsga2Config::default()), 21, 1500);
+            let mut run = Run::new(config, &SlowDtlz2).unwrap();
+            steps(&mut run, &SlowDtlz2, 15);
+            assert_eq!(run.evaluations(), 1500);
             run.to_json()
         })
     };
