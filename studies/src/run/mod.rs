@@ -418,10 +418,7 @@ fn commit(
     state.history_bytes += line.len() as u64;
     // front.csv and summary.json follow from the checkpoint (a resume rewrites them), so on
     // fast generations they are refreshed every few seconds rather than every generation.
-    if state
-        .derived_written
-        .is_none_or(|t| t.elapsed() >= DERIVED_EVERY)
-    {
+    if !matches!(state.derived_written, Some(t) if t.elapsed() < DERIVED_EVERY) {
         write_front(rd, study, state, cache)?;
         write_summary(rd, study, state, elapsed, fingerprint, stop_reason, false)?;
         state.derived_written = Some(Instant::now());

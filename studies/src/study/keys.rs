@@ -352,7 +352,7 @@ pub fn closest<'a>(word: &str, candidates: impl IntoIterator<Item = &'a str>) ->
     let mut best: Option<(&str, f64)> = None;
     for c in candidates {
         let score = strsim::jaro_winkler(&word.to_lowercase(), &c.to_lowercase());
-        if best.is_none_or(|(_, b)| score > b) {
+        if !matches!(best, Some((_, b)) if score <= b) {
             best = Some((c, score));
         }
     }
