@@ -10,7 +10,10 @@ fn main() {
         "steps {} point solves {}",
         e.numerics.integration_steps, e.numerics.point_solves
     );
-    let n = 5000;
+    let n: u32 = std::env::var("STRIA_SPEED_N")
+        .ok()
+        .and_then(|v| v.parse().ok())
+        .unwrap_or(5000);
     let t = std::time::Instant::now();
     for _ in 0..n {
         std::hint::black_box(evaluate(&d, &k, &o).unwrap());

@@ -92,13 +92,17 @@ pub struct Cell {
     pub k: RomConstants,
 }
 
-/// Warm-start values of the point solve (the previous point's layer voltages).
+/// Warm-start values of the point solve (the previous point's layer voltages and slopes).
 #[derive(Debug, Clone, Copy, Default, PartialEq)]
 pub struct Guess {
-    /// Voltage of the unknown (primary) layer, thermal units.
-    pub primary: f64,
-    /// Voltage of the other layer, thermal units.
-    pub secondary: f64,
+    /// CEM layer voltage, thermal units.
+    pub v_cem: f64,
+    /// AEM layer voltage, thermal units.
+    pub v_aem: f64,
+    /// di/dv of the CEM layer there (0 = unknown), A/m^2.
+    pub slope_cem: f64,
+    /// di/dv of the AEM layer there, A/m^2.
+    pub slope_aem: f64,
 }
 
 /// The solution at one point.
@@ -232,17 +236,16 @@ impl Cell {
     pub fn solve(&self, p: &Point, u: f64, guess: &mut Guess) -> PointSolution {
         let cem_limits = p.cem.i_het <= p.aem.i_het;
         let drive = (u - p.e_mem) / self.vt;
-        let (v_cem, v_aem, i) = if drive <= 0.0 {
-            (0.0, 0.0, 0.0)
+        let (v_cem, v_aem, i, slope_cem, slope_aem) = if drive <= 0.0 {
+            (0.0, 0.0, 0.0, 0.0, 0.0)
         } else {
             // Start with the layer that was clearly flatter at the previous point (on a
             // plateau the voltage is the well-conditioned unknown); when neither is clearly
             // flatter, with the one whose law is dearer to invert (the patterned one), so the
             // cheap plain law is the one inverted in the loop.
             let cem_dear = !p.cem.is_plain() || p.aem.is_plain();
-            let mut cem_primary = if guess.primary > 0.0 || guess.secondary > 0.0 {
-                let (_, dc) = p.cem.current(guess.primary);
-                let (_, da) = p.aem.current(guess.secondary);
+            let (dc, da) = (guess.slope_cem, guess.slope_aem);
+            let mut cem_primary = if dc > 0.0 && da > 0.0 {
                 if dc * CONDITIONING < da {
                     true
                 } else if da * CONDITIONING < dc {
@@ -254,11 +257,11 @@ impl Cell {
                 cem_limits
             };
             let mut g = if cem_primary {
-                (guess.primary, guess.secondary)
+                (guess.v_cem, guess.v_aem)
             } else {
-                (guess.secondary, guess.primary)
+                (guess.v_aem, guess.v_cem)
             };
-            let mut result = (0.0, 0.0, 0.0);
+            let mut result = (0.0, 0.0, 0.0, 0.0, 0.0);
             for _ in 0..2 {
                 let (prim, sec) = if cem_primary {
                     (&p.cem, &p.aem)
@@ -266,7 +269,11 @@ impl Cell {
                     (&p.aem, &p.cem)
                 };
                 let (v, vs, i, dip, dis) = self.solve_with(p, prim, sec, drive, g);
-                result = if cem_primary { (v, vs, i) } else { (vs, v, i) };
+                result = if cem_primary {
+                    (v, vs, i, dip, dis)
+                } else {
+                    (vs, v, i, dis, dip)
+                };
                 if dis * CONDITIONING >= dip {
                     break;
                 }
@@ -275,8 +282,12 @@ impl Cell {
             }
             result
         };
-        guess.primary = v_cem;
-        guess.secondary = v_aem;
+        *guess = Guess {
+            v_cem,
+            v_aem,
+            slope_cem,
+            slope_aem,
+        };
         let k = &self.k;
         let ws_cem = water_splitting_share(v_cem, k.water_splitting_onset, k.water_splitting_scale);
         let ws_aem =
@@ -285,6 +296,7 @@ impl Cell {
             PatternSide::Aem => (&p.aem, v_aem),
             _ => (&p.cem, v_cem),
         };
+        let (alpha, wavelength) = pat.alpha_and_wavelength(v_pat);
         PointSolution {
             current_density: i,
             v_cem,
@@ -292,8 +304,8 @@ impl Cell {
             xi: self.xi0 * (1.0 - 0.5 * (ws_cem + ws_aem)),
             ws_cem,
             ws_aem,
-            alpha: pat.alpha(v_pat),
-            wavelength: pat.wavelength(v_pat).unwrap_or(0.0),
+            alpha,
+            wavelength,
             limiting: p.cem.i_het.min(p.aem.i_het),
             cem_limits,
         }

@@ -92,12 +92,14 @@ pub struct ChannelResult {
 
 /// How closely (thermal units) a step end is put on a kink of the current (onset of
 /// electroconvection or of water splitting).
-const KINK_TOL: f64 = 1e-7;
+const KINK_TOL: f64 = 1e-3;
 
-/// Fraction t of the trial step [s, s + h] at which `layer` (0 CEM, 1 AEM) reaches the kink
-/// voltage `kv`: regula falsi (Illinois variant) on point solves along the cubic Hermite
+/// Fraction t of the trial step [s, s + h] at which `layer` (0 CEM, 1 AEM) comes within
+/// KINK_TOL short of the kink voltage `kv`, found by point solves along the cubic Hermite
 /// interpolant of the trial step (the concentration barely changes over one step, so the
-/// interpolant's error hardly moves the crossing). Voltages v0 at t = 0 and v1 at t = 1.
+/// interpolant's error hardly moves the crossing). v(t) is smooth on the start side of the
+/// kink only, so the iteration extrapolates with secants through start-side points and
+/// falls back to regula falsi against the far side. Voltages v0 at t = 0 and v1 at t = 1.
 #[allow(clippy::too_many_arguments)]
 fn locate_kink(
     rhs: &mut Rhs,
@@ -120,38 +122,55 @@ fn locate_kink(
             + (-2.0 * t3 + 3.0 * t2) * y1[0]
             + (t3 - t2) * h * k1[0]
     };
-    let (mut ta, mut fa) = (0.0, v0 - kv);
-    let (mut tb, mut fb) = (1.0, v1 - kv);
-    let mut side = 0;
-    let mut t = 0.5;
+    // Aim half a tolerance short of the kink, on the start side.
+    let dir = (v1 - v0).signum();
+    let aim = kv - 0.5 * KINK_TOL * dir;
+    let (mut ta, mut fa) = (0.0, v0 - aim);
+    let mut fa_weight = fa;
+    let mut prev: Option<(f64, f64)> = None;
+    let (mut tb, mut fb) = (1.0, v1 - aim);
+    let mut far_in_a_row = 0;
     for _ in 0..40 {
-        t = (ta * fb - tb * fa) / (fb - fa);
+        let secant = prev.map(|(tp, fp)| ta - fa * (ta - tp) / (fa - fp));
+        let mut t = match secant {
+            Some(t) if t > ta && t < tb => t,
+            // Illinois regula falsi: the start-side value is halved after repeated far-side
+            // hits, so the bracket closes from both ends.
+            _ => (ta * fb - tb * fa_weight) / (fb - fa_weight),
+        };
         if !(t > ta && t < tb) {
             t = 0.5 * (ta + tb);
         }
         let sol = rhs.point(s + t * h, herm(t));
         let v = if layer == 0 { sol.v_cem } else { sol.v_aem };
-        let f = v - kv;
-        if f.abs() < KINK_TOL || tb - ta < 1e-12 {
-            break;
-        }
+        let f = v - aim;
         if f * fa > 0.0 {
+            prev = Some((ta, fa));
             ta = t;
             fa = f;
-            if side == -1 {
-                fb *= 0.5;
+            fa_weight = f;
+            far_in_a_row = 0;
+            if f.abs() < 0.5 * KINK_TOL {
+                return t;
             }
-            side = -1;
         } else {
             tb = t;
             fb = f;
-            if side == 1 {
-                fa *= 0.5;
+            prev = None;
+            far_in_a_row += 1;
+            if far_in_a_row >= 2 {
+                fa_weight *= 0.5;
             }
-            side = 1;
+        }
+        if tb - ta < 1e-12 {
+            break;
         }
     }
-    t
+    if ta > 0.0 {
+        ta
+    } else {
+        tb
+    }
 }
 
 // Dormand-Prince 5(4) tableau.
@@ -211,6 +230,8 @@ struct Rhs<'a> {
     /// Counter-current concentrate uses the channel-mean layer thickness.
     delta_c_mean: f64,
     guess: Guess,
+    /// The last two points (s, solution) for the warm start.
+    history: [(f64, Guess); 2],
     evaluations: u32,
 }
 
@@ -237,7 +258,24 @@ impl Rhs<'_> {
         let c_c = self.c_c(c_d).max(1e-12 * self.streams.c_d_in);
         let p = cell.point(delta_d, delta_c, c_d, c_c);
         self.evaluations += 1;
-        cell.solve(&p, self.u, &mut self.guess)
+        // Warm start: extrapolate the layer voltages linearly in s from the last two
+        // points when moving forward (Runge-Kutta stages mostly do).
+        let (s1, g1) = self.history[1];
+        let (s0, g0) = self.history[0];
+        if s > s1
+            && s1 > s0
+            && s - s1 <= 2.0 * (s1 - s0)
+            && g1.slope_cem > 0.0
+            && g0.slope_cem > 0.0
+        {
+            let r = (s - s1) / (s1 - s0);
+            self.guess.v_cem = (g1.v_cem + r * (g1.v_cem - g0.v_cem)).max(0.0);
+            self.guess.v_aem = (g1.v_aem + r * (g1.v_aem - g0.v_aem)).max(0.0);
+        }
+        let sol = cell.solve(&p, self.u, &mut self.guess);
+        self.history[0] = self.history[1];
+        self.history[1] = (s, self.guess);
+        sol
     }
 
     fn eval(&mut self, s: f64, y: &State) -> (State, PointSolution) {
@@ -342,6 +380,7 @@ fn integrate_once(
         flux: FARADAY * cell.gap_d * streams.u_d,
         delta_c_mean: cell.sh_c.hydraulic_diameter_m / cell.sh_c.mean(length),
         guess: Guess::default(),
+        history: [(-2.0, Guess::default()), (-1.0, Guess::default())],
         evaluations: 0,
     };
     let mut profiles = want_profiles.then(Profiles::default);
@@ -404,14 +443,14 @@ fn integrate_once(
                 .enumerate()
             {
                 for kv in kinks {
-                    if (v0 - kv) * (v1 - kv) < 0.0 && (v0 - kv).abs() > 1e-4 {
+                    if (v0 - kv) * (v1 - kv) < 0.0 && (v0 - kv).abs() > 10.0 * KINK_TOL {
                         let t =
                             locate_kink(&mut rhs, s, h, &y, &k0, &y_new, &k_new, layer, kv, v0, v1);
                         best = Some(best.map_or(t, |b: f64| b.min(t)));
                     }
                 }
             }
-            if let Some(t) = best {
+            if let Some(t) = best.filter(|&t| t > 1e-6) {
                 h_before_landing = h * (0.9 * en.max(1e-10).powf(-0.2)).clamp(0.2, 1.0);
                 h *= t.max(1e-6);
                 landing = true;

@@ -87,10 +87,12 @@ struct ErfAt {
 
 impl ErfAt {
     fn new(a: f64) -> Self {
+        let tail = libm::erfc(a.abs());
+        // erf(a) is only needed for a < 0, where it equals erfc(-a) - 1.
         ErfAt {
             a,
-            tail: libm::erfc(a.abs()),
-            erf: libm::erf(a),
+            tail,
+            erf: if a < 0.0 { tail - 1.0 } else { 1.0 - tail },
         }
     }
 
@@ -272,6 +274,22 @@ impl Layer {
         self.a0 + self.amp * (-z * z / (2.0 * self.sigma * self.sigma)).exp()
     }
 
+    /// (alpha(v), vortex wavelength at v or 0 at and below onset) sharing one logarithm.
+    #[inline]
+    pub fn alpha_and_wavelength(&self, v: f64) -> (f64, f64) {
+        if v <= self.v_c {
+            return (self.alpha(v), 0.0);
+        }
+        let s = (v / self.v_c).ln();
+        let alpha = if self.amp == 0.0 {
+            self.a0
+        } else {
+            let z = self.z0 - self.q * s;
+            self.a0 + self.amp * (-z * z / (2.0 * self.sigma * self.sigma)).exp()
+        };
+        (alpha, self.lambda0 * (self.q * s).exp())
+    }
+
     /// Natural vortex wavelength at `v`, m; None at or below onset.
     #[inline]
     pub fn wavelength(&self, v: f64) -> Option<f64> {
@@ -378,7 +396,8 @@ impl Layer {
                 let next = (v - f / d).clamp(self.v_c, hi);
                 let step = (next - v).abs();
                 v = next;
-                if step <= 1e-12 * (1.0 + v) {
+                // Newton's next error is about step^2 f''/(2 f'), f'' = i_het e / 4.
+                if step * step * (0.125 * self.i_het * e / d) <= 1e-13 * (1.0 + v) {
                     break;
                 }
             }
