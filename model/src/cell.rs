@@ -43,7 +43,7 @@ pub fn spreading_length(pitch_m: f64, open_fraction: f64) -> f64 {
 
 /// Ratio of the slopes di/dv of the two layers beyond which the flatter layer's voltage is
 /// taken as the unknown (for conditioning on a current plateau).
-const CONDITIONING: f64 = 10.0;
+const CONDITIONING: f64 = 1e4;
 
 /// Everything about one cell pair that is constant along the channel.
 #[derive(Debug, Clone, Copy)]
