@@ -409,9 +409,15 @@ pub fn reference_markdown() -> String {
             ));
         }
         if *section == "rom" {
+            let rows = model::constants::provenance();
             for (key, _) in rom_keys() {
+                let (symbol, unit) = rows
+                    .iter()
+                    .find(|r| r.key == key)
+                    .map(|r| (r.symbol, r.unit))
+                    .unwrap_or(("", "-"));
                 out.push_str(&format!(
-                    "| `{key}` | number | - | the model's value | finite | | ROM constant `{key}`: meaning, default and source in the model's constants table (`stria check` prints the values in force). |\n"
+                    "| `{key}` | number | {unit} | the model's value | finite | | ROM constant {symbol}; default and source in the model's constants table (`stria check` prints the values in force). |\n"
                 ));
             }
         }
