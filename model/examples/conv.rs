@@ -1,4 +1,5 @@
-//! Convergence of the demo outlet with the integration tolerance.
+//! Convergence of the outlet with the integration tolerance, demo design (invented, for the
+//! demo only) at 0.5 V (no kinks) and 2.0 V (overlimiting: onset kinks along the channel).
 use model::{evaluate, Design, Drive, Options, RomConstants};
 fn main() {
     let k = RomConstants::default();

@@ -532,6 +532,21 @@ mod tests {
     }
 
     #[test]
+    fn funnelling_small_pitch_slope_matches_strip_constriction() {
+        // The default funnel_scale is chosen so that, for pitch << delta, 1 - Phi equals the
+        // strip-constriction estimate (pitch / (pi delta)) ln(1 / sin(pi f / 2)) at f = 0.5.
+        let k = RomConstants::default();
+        let (pitch, delta, f) = (1e-7, 1e-4, 0.5);
+        let deficit = 1.0 - funnelling(pitch, delta, f, &k);
+        let constriction = pitch / (std::f64::consts::PI * delta)
+            * (1.0 / (0.5 * std::f64::consts::PI * f).sin()).ln();
+        assert!(
+            (deficit / constriction - 1.0).abs() < 0.02,
+            "{deficit} vs {constriction}"
+        );
+    }
+
+    #[test]
     fn closed_form_integral_matches_quadrature() {
         let k = RomConstants::default();
         for (pitch, f) in [(1e-4, 0.5), (3e-4, 0.3), (2e-5, 0.8), (5e-3, 0.5)] {

@@ -32,6 +32,14 @@ pub use design::*;
 pub use evaluate::{evaluate, iv_curve, IvPoint};
 pub use output::*;
 
+/// The safety note that goes with every result of the model (model.md section 9), for the
+/// README, reports and hand-off cards.
+pub const SAFETY_NOTE: &str = "stria is a screening model: its results guide design and \
+detailed simulation, they do not certify a plant. Product water must meet the local \
+drinking-water rules. Electrodialysis stacks run at hazardous voltages; electrode reactions \
+make gases (hydrogen, chlorine, oxygen) that must be vented; overlimiting operation shifts pH \
+and can scale membranes. Defer to local codes and licensed practice.";
+
 /// Why an evaluation could not produce a result.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
 pub enum ModelError {
