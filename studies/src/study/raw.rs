@@ -85,20 +85,22 @@ pub fn unknown_key_help(section: &str, key: &str) -> (String, String) {
             names.join(", "),
         );
     }
-    if let Some(best) = closest(key, valid.iter().map(|s| s.as_str())) {
-        return (
-            format!("unknown key `{key}` in [{section}]; did you mean `{best}`?"),
-            valid.join(", "),
-        );
-    }
     // A key that lives in another section.
     for (other, _) in SECTIONS {
-        if valid_keys(other).iter().any(|v| v == key) {
+        // Bound keys recur in every variable section; there the unit is what differs.
+        let both_variables = section.starts_with("variables.") && other.starts_with("variables.");
+        if !both_variables && valid_keys(other).iter().any(|v| v == key) {
             return (
                 format!("unknown key `{key}` in [{section}]; it belongs in [{other}]"),
                 valid.join(", "),
             );
         }
+    }
+    if let Some(best) = closest(key, valid.iter().map(|s| s.as_str())) {
+        return (
+            format!("unknown key `{key}` in [{section}]; did you mean `{best}`?"),
+            valid.join(", "),
+        );
     }
     (
         format!("unknown key `{key}` in [{section}]"),
@@ -349,6 +351,18 @@ mod tests {
             .to_string();
         assert!(msg.contains("no unit"), "{msg}");
         assert!(msg.contains("gap_mm"), "{msg}");
+    }
+
+    #[test]
+    fn a_key_in_the_wrong_section_is_sent_home() {
+        let msg = RawStudy::parse(Path::new("s.toml"), "[channel]\npitch_um = 80\n")
+            .unwrap_err()
+            .to_string();
+        assert!(msg.contains("belongs in [membranes]"), "{msg}");
+        let msg = RawStudy::parse(Path::new("s.toml"), "[variables.gap]\nlower_um = 80\n")
+            .unwrap_err()
+            .to_string();
+        assert!(msg.contains("lower_mm"), "{msg}");
     }
 
     #[test]
