@@ -68,6 +68,8 @@ proptest! {
             let (i, di) = l.current(v);
             prop_assert!(i > last, "not increasing at v = {}: {} -> {}", v, last, i);
             prop_assert!(di > 0.0);
+            // model.md section 4: alpha never exceeds the open fraction.
+            prop_assert!(l.alpha(v) <= f.min(1.0) + 1e-15);
             last = i;
         }
     }
