@@ -403,10 +403,10 @@ fn integrate_once(
     let mut en_prev: f64 = 1e-4;
     let mut landing = false;
     let mut h_before_landing = 0.0;
+    // Kinks of each layer's law: its onset and its own water-splitting onset.
     let kinks = [
-        cell.k.onset_voltage,
-        cell.k.water_splitting_onset,
-        cell.k.water_splitting_onset_aem,
+        [cell.k.onset_voltage, cell.k.water_splitting_onset],
+        [cell.k.onset_voltage, cell.k.water_splitting_onset_aem],
     ];
     let mut steps = 0u32;
     let (mut max_v_cem, mut max_v_aem, mut max_ws) = (0.0f64, 0.0f64, 0.0f64);
@@ -442,7 +442,7 @@ fn integrate_once(
                 .into_iter()
                 .enumerate()
             {
-                for kv in kinks {
+                for kv in kinks[layer] {
                     if (v0 - kv) * (v1 - kv) < 0.0 && (v0 - kv).abs() > 10.0 * KINK_TOL {
                         let t =
                             locate_kink(&mut rhs, s, h, &y, &k0, &y_new, &k_new, layer, kv, v0, v1);
