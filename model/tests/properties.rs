@@ -206,3 +206,53 @@ fn energy_never_below_thermodynamic_minimum() {
         );
     }
 }
+
+/// Robustness of the other drives and modes over random designs (seeded): current drive
+/// finds a voltage that reproduces the current; target mode either finds a length whose
+/// outlet is the target or reports the target unreachable.
+#[test]
+fn current_drive_and_target_mode_over_random_designs() {
+    let mut rng = ChaCha8Rng::seed_from_u64(7_001);
+    let k = RomConstants::default();
+    let o = Options {
+        rel_tol: 1e-7,
+        profiles: false,
+    };
+    let (mut found, mut unreachable) = (0, 0);
+    for n in 0..300 {
+        let d = random_design(&mut rng);
+        let base = evaluate(&d, &k, &o).unwrap();
+        if base.performance.cell_current_A > 1e-3 {
+            let mut g = d;
+            g.operation.drive = Drive::Current {
+                cell_current_a: base.performance.cell_current_A,
+            };
+            let e = evaluate(&g, &k, &o).unwrap_or_else(|err| panic!("design {n}: {err}: {g:?}"));
+            assert!(
+                (e.performance.cell_current_A / base.performance.cell_current_A - 1.0).abs() < 1e-6,
+                "design {n}"
+            );
+        }
+        let mut t = d;
+        let target = d.water.feed_concentration_mol_m3 * rng.random_range(0.05..0.95);
+        t.operation.length_mode = LengthMode::ProductTarget {
+            product_concentration_mol_m3: target,
+        };
+        match evaluate(&t, &k, &o) {
+            Ok(e) => {
+                found += 1;
+                assert!((e.performance.outlet_concentration_mol_m3 / target - 1.0).abs() < 1e-6);
+                assert!(e.inputs.length_m <= d.channel.length_m);
+            }
+            Err(ModelError::TargetUnreachable { outlet_mol_m3, .. }) => {
+                unreachable += 1;
+                assert!(outlet_mol_m3 > target);
+            }
+            Err(other) => panic!("design {n}: {other}: {t:?}"),
+        }
+    }
+    assert!(
+        found > 20 && unreachable > 20,
+        "{found} found, {unreachable} unreachable"
+    );
+}
