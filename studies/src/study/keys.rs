@@ -349,6 +349,19 @@ pub fn section_keys(section: &str) -> Vec<&'static str> {
 
 /// The closest of `candidates` to `word`, if close enough to be a likely typo.
 pub fn closest<'a>(word: &str, candidates: impl IntoIterator<Item = &'a str>) -> Option<&'a str> {
+    let candidates: Vec<&'a str> = candidates.into_iter().collect();
+    // A shortened name (`energy` for `specific_energy`) is a likely intent too.
+    let lower = word.to_lowercase();
+    if lower.len() >= 4 {
+        let containing: Vec<&str> = candidates
+            .iter()
+            .copied()
+            .filter(|c| c.to_lowercase().contains(&lower))
+            .collect();
+        if containing.len() == 1 {
+            return Some(containing[0]);
+        }
+    }
     let mut best: Option<(&str, f64)> = None;
     for c in candidates {
         let score = strsim::jaro_winkler(&word.to_lowercase(), &c.to_lowercase());
@@ -503,5 +516,9 @@ mod tests {
             Some("pitch_um")
         );
         assert_eq!(closest("zzz", ["pitch_um", "open_fraction"]), None);
+        assert_eq!(
+            closest("energy", OBJECTIVES.iter().copied()),
+            Some("specific_energy")
+        );
     }
 }
