@@ -115,6 +115,7 @@ fn dispatch(cli: Cli) -> Result<(), CliError> {
             max_evals,
             hours,
             fresh,
+            evaluations_csv_cap: None,
         })
         .map(|_| ()),
         Command::Report { dir } => studies::report::run(&dir),

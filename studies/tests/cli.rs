@@ -564,3 +564,31 @@ fn run_directory_has_the_contract_columns() {
         .count();
     assert_eq!(rows, 33);
 }
+
+#[test]
+fn evaluations_csv_stops_at_its_cap_and_the_summary_says_so() {
+    let dir = tempfile::tempdir().unwrap();
+    let study = small_study(dir.path(), "s.toml", 160);
+    let out = dir.path().join("run");
+    let opts = studies::run::RunOptions {
+        study: study.clone(),
+        out: Some(out.clone()),
+        threads: Some(1),
+        evaluations_csv_cap: Some(50),
+        ..Default::default()
+    };
+    studies::run::run(&opts).unwrap();
+    let rows = String::from_utf8(read(&out.join("evaluations.csv"))).unwrap();
+    assert_eq!(rows.lines().count(), 51, "header and 50 rows");
+    assert!(rows.lines().last().unwrap().starts_with("49,"));
+    let s: serde_json::Value = serde_json::from_slice(&read(&out.join("summary.json"))).unwrap();
+    assert_eq!(s["evaluations"], 160);
+    assert_eq!(s["evaluations_csv_cap"], 50);
+    assert_eq!(s["evaluations_csv_rows"], 50);
+    // Resuming a finished run changes nothing.
+    studies::run::run(&opts).unwrap();
+    assert_eq!(
+        String::from_utf8(read(&out.join("evaluations.csv"))).unwrap(),
+        rows
+    );
+}

@@ -38,6 +38,8 @@ pub struct RunOptions {
     pub hours: Option<f64>,
     /// Discard an existing run in the directory.
     pub fresh: bool,
+    /// Rows of evaluations.csv kept at most (default [`EVALUATIONS_CSV_CAP`]).
+    pub evaluations_csv_cap: Option<u64>,
 }
 
 /// Why the loop ended, for the final message.
@@ -56,6 +58,7 @@ struct State {
     history_bytes: u64,
     elapsed_before_s: f64,
     cap_noted: bool,
+    csv_cap: u64,
     derived_written: Option<Instant>,
 }
 
@@ -140,6 +143,7 @@ pub fn run(opts: &RunOptions) -> Result<Ended, CliError> {
             "[variables.pitch], [variables.open_fraction], [variables.velocity], [variables.cell_pair_voltage], [variables.gap], [variables.length]",
         ));
     }
+    let csv_cap = opts.evaluations_csv_cap.unwrap_or(EVALUATIONS_CSV_CAP);
     let dir = opts.out.clone().unwrap_or_else(|| default_dir(&opts.study));
     std::fs::create_dir_all(&dir).map_err(|e| io_error("create", &dir, e))?;
     let rd = RunDir::new(&dir);
@@ -171,9 +175,9 @@ pub fn run(opts: &RunOptions) -> Result<Ended, CliError> {
     }
 
     let mut state = if rd.checkpoint().exists() && !opts.fresh {
-        resume(&rd, &study, &fingerprint)?
+        resume(&rd, &study, &fingerprint, csv_cap)?
     } else {
-        start(&rd, &study, &problem, &fingerprint)?
+        start(&rd, &study, &problem, &fingerprint, csv_cap)?
     };
     write_atomic(&rd.study(), study.to_resolved_toml().as_bytes())
         .map_err(|e| io_error("write", &rd.study(), e))?;
@@ -196,7 +200,10 @@ pub fn run(opts: &RunOptions) -> Result<Ended, CliError> {
         threads,
         dir.display()
     );
-    eprintln!("evaluations.csv keeps at most {EVALUATIONS_CSV_CAP} rows; later evaluations count in the summary only");
+    eprintln!(
+        "evaluations.csv keeps at most {} rows; later evaluations count in the summary only",
+        state.csv_cap
+    );
     if state.run.evaluations() > 0 {
         eprintln!(
             "resuming at generation {} ({} evaluations done)",
@@ -277,6 +284,7 @@ fn start(
     study: &Study,
     problem: &StudyProblem,
     fingerprint: &str,
+    csv_cap: u64,
 ) -> Result<State, CliError> {
     let run = Run::new(run_config(study), problem).map_err(|e| {
         CliError::input(
@@ -299,6 +307,7 @@ fn start(
         history_bytes: HISTORY_HEADER.len() as u64,
         elapsed_before_s: 0.0,
         cap_noted: false,
+        csv_cap,
         derived_written: None,
     };
     write_atomic(&rd.study(), study.to_resolved_toml().as_bytes())
@@ -310,7 +319,7 @@ fn start(
     Ok(state)
 }
 
-fn resume(rd: &RunDir, study: &Study, fingerprint: &str) -> Result<State, CliError> {
+fn resume(rd: &RunDir, study: &Study, fingerprint: &str, csv_cap: u64) -> Result<State, CliError> {
     let path = rd.checkpoint();
     let text = std::fs::read_to_string(&path).map_err(|e| io_error("read", &path, e))?;
     let cp: Checkpoint = serde_json::from_str(&text).map_err(|e| {
@@ -372,7 +381,8 @@ fn resume(rd: &RunDir, study: &Study, fingerprint: &str) -> Result<State, CliErr
         eval_rows: cp.evaluations_csv_rows,
         history_bytes: cp.history_csv_bytes,
         elapsed_before_s: cp.elapsed_s,
-        cap_noted: cp.evaluations_csv_rows >= EVALUATIONS_CSV_CAP,
+        cap_noted: cp.evaluations_csv_rows >= csv_cap,
+        csv_cap,
         derived_written: None,
     })
 }
@@ -390,9 +400,12 @@ fn commit(
 ) -> Result<(), CliError> {
     let mut rows = String::new();
     for e in &report.new {
-        if state.eval_rows >= EVALUATIONS_CSV_CAP {
+        if state.eval_rows >= state.csv_cap {
             if !state.cap_noted {
-                eprintln!("evaluations.csv reached its cap of {EVALUATIONS_CSV_CAP} rows; later evaluations are counted in summary.json only");
+                eprintln!(
+                    "evaluations.csv reached its cap of {} rows; later evaluations are counted in summary.json only",
+                    state.csv_cap
+                );
                 state.cap_noted = true;
             }
             break;
@@ -500,7 +513,7 @@ fn write_summary(
         "variables": variables,
         "constraints": constraints,
         "currency": study.currency,
-        "evaluations_csv_cap": EVALUATIONS_CSV_CAP,
+        "evaluations_csv_cap": state.csv_cap,
         "evaluations_csv_rows": state.eval_rows,
         "hypervolume": state.run.hv_history().last().copied().unwrap_or(0.0),
         "hv_reference": state.run.hv_reference(),
