@@ -32,7 +32,8 @@ pub fn sig(x: f64, sig: usize) -> String {
 }
 
 fn row(out: &mut String, label: &str, value: String, unit: &str) {
-    let _ = writeln!(out, "  {label:<34} {value:>12} {unit}");
+    let line = format!("  {label:<34} {value:>12} {unit}");
+    let _ = writeln!(out, "{}", line.trim_end());
 }
 
 /// The design sheet: inputs, properties, hydraulics, transfer, performance, economics,
@@ -87,6 +88,21 @@ pub fn design_sheet(study: &Study, e: &Evaluation) -> String {
     row(&mut s, "width", sig(i.width_m, 4), "m");
     row(&mut s, "spacer", i.spacer.clone(), "");
     row(&mut s, "velocity", sig(i.velocity_m_s * 100.0, 4), "cm/s");
+    row(
+        &mut s,
+        "concentrate gap / velocity",
+        format!(
+            "{} / {}",
+            sig(d.channel.concentrate_gap_m * 1e3, 3),
+            sig(d.operation.concentrate_velocity_m_s * 100.0, 3)
+        ),
+        "mm / cm/s",
+    );
+    let flow = match d.operation.flow {
+        model::FlowArrangement::CoCurrent => "co-current",
+        model::FlowArrangement::CounterCurrent => "counter-current",
+    };
+    row(&mut s, "flow arrangement", flow.into(), "");
     row(&mut s, "pattern pitch", sig(i.pitch_m * 1e6, 4), "um");
     row(&mut s, "open fraction", sig(i.open_fraction, 4), "-");
     let side = match d.membranes.pattern_side {
