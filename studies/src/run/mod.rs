@@ -147,6 +147,24 @@ pub fn run(opts: &RunOptions) -> Result<Ended, CliError> {
     let dir = opts.out.clone().unwrap_or_else(|| default_dir(&opts.study));
     std::fs::create_dir_all(&dir).map_err(|e| io_error("create", &dir, e))?;
     let rd = RunDir::new(&dir);
+    // One run per directory at a time: an advisory lock, released by the OS however the
+    // process ends (so a killed run never leaves a stale lock behind).
+    let lock_path = dir.join(".stria.lock");
+    let lock = std::fs::OpenOptions::new()
+        .create(true)
+        .truncate(false)
+        .write(true)
+        .open(&lock_path)
+        .map_err(|e| io_error("open", &lock_path, e))?;
+    if lock.try_lock().is_err() {
+        return Err(CliError::input(
+            &opts.study,
+            None,
+            "--out",
+            format!("another `stria run` is working in {}", dir.display()),
+            "wait for it to finish (or stop it with Ctrl-C), or give another --out directory",
+        ));
+    }
     let problem = StudyProblem { study: &study };
     let fingerprint = study.fingerprint();
 
