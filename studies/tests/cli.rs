@@ -592,3 +592,38 @@ fn evaluations_csv_stops_at_its_cap_and_the_summary_says_so() {
         rows
     );
 }
+
+#[test]
+fn a_second_run_in_the_same_directory_is_refused() {
+    let dir = tempfile::tempdir().unwrap();
+    let study = small_study(dir.path(), "s.toml", 1_000_000);
+    let out = dir.path().join("run");
+    let mut first = Command::new(env!("CARGO_BIN_EXE_stria"))
+        .args([
+            "run",
+            study.to_str().unwrap(),
+            "--out",
+            out.to_str().unwrap(),
+            "--threads",
+            "1",
+        ])
+        .stdin(Stdio::null())
+        .stdout(Stdio::null())
+        .stderr(Stdio::null())
+        .spawn()
+        .unwrap();
+    let mut waited = 0;
+    while !out.join("checkpoint.json").exists() && waited < 200 {
+        std::thread::sleep(Duration::from_millis(50));
+        waited += 1;
+    }
+    let o = stria(&[
+        "run",
+        study.to_str().unwrap(),
+        "--out",
+        out.to_str().unwrap(),
+    ]);
+    first.kill().unwrap();
+    first.wait().unwrap();
+    assert_bad(&o, "s.toml", None, "--out", "another `stria run`");
+}
