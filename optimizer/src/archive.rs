@@ -125,6 +125,18 @@ impl Archive {
     /// objectives and no epsilon grid this is a sort-and-sweep, O(n log n) in the archive
     /// size (Kung, Luccio and Preparata, J. ACM 22 (1975) 469).
     pub fn insert_batch(&mut self, batch: &[Evaluated]) {
+        self.insert_batch_measured(batch, None);
+    }
+
+    /// As [`Archive::insert_batch`]; with a `reference` point, when the sort-and-sweep path
+    /// runs and every archived point lies strictly inside the reference box, the archive's
+    /// hypervolume is measured in the same sweep and returned (the sweep is that of
+    /// [`crate::indicators`]).
+    pub(crate) fn insert_batch_measured(
+        &mut self,
+        batch: &[Evaluated],
+        reference: Option<&[f64]>,
+    ) -> Option<f64> {
         let m = self.members.first().map_or(0, |e| e.objectives.len());
         let feasible: Vec<&Evaluated> = batch.iter().filter(|e| e.is_feasible()).collect();
         let m = if m == 0 {
@@ -136,7 +148,7 @@ impl Archive {
             for e in feasible {
                 self.insert(e);
             }
-            return;
+            return None;
         }
         // Sort keys of the members, kept between calls (derived data, rebuilt after a
         // deserialisation or a one-by-one insertion).
@@ -162,20 +174,42 @@ impl Archive {
         // Sweep in sorted order: a point is dominated (or a later duplicate) exactly when an
         // earlier one is no worse in the remaining objectives.
         let mut kept: Vec<SortKey> = Vec::with_capacity(merged.len());
+        let r = reference.filter(|r| r.len() == m);
+        let mut inside = r.is_some();
+        let mut vol = 0.0;
         if m == 2 {
             let mut best = f64::INFINITY;
             for k in merged {
                 if k.0[1] < best {
+                    if let Some(r) = r {
+                        inside &= k.0[0] < r[0] && k.0[1] < r[1];
+                        if inside {
+                            vol += (r[0] - k.0[0]) * (best.min(r[1]) - k.0[1]);
+                        }
+                    }
                     best = k.0[1];
                     kept.push(k);
                 }
             }
         } else {
             let mut stairs = Staircase::default();
+            let bound = r.map(|r| (r[1], r[2]));
+            let mut area = 0.0;
             for k in merged {
-                if stairs.insert_if_not_dominated(k.0[1], k.0[2]) {
-                    kept.push(k);
+                let Some(added) = stairs.insert(k.0[1], k.0[2], bound) else {
+                    continue;
+                };
+                if let Some(r) = r {
+                    inside &= k.0[0] < r[0] && k.0[1] < r[1] && k.0[2] < r[2];
+                    if let Some(prev) = kept.last() {
+                        vol += area * (k.0[0] - prev.0[0]);
+                    }
+                    area += added;
                 }
+                kept.push(k);
+            }
+            if let (Some(r), Some(last)) = (r, kept.last()) {
+                vol += area * (r[0] - last.0[0]);
             }
         }
         let mut ids: Vec<u64> = kept.iter().map(|k| k.1).collect();
@@ -196,6 +230,7 @@ impl Archive {
             }
         }
         self.order = kept;
+        (inside && !self.members.is_empty()).then_some(vol)
     }
 
     fn insert_plain(&mut self, e: &Evaluated) -> bool {
@@ -247,20 +282,46 @@ impl Archive {
 struct Staircase(Vec<(f64, f64)>);
 
 impl Staircase {
-    /// Insert (x, y) unless a point with x' <= x and y' <= y is present; drop the points it
-    /// dominates. Returns whether it was inserted.
-    fn insert_if_not_dominated(&mut self, x: f64, y: f64) -> bool {
+    /// Insert (x, y) unless dominated (then `None`); with a `bound` (the reference point in
+    /// the two coordinates, every point inside it) also return the area the point adds to the
+    /// region the staircase dominates within the bound (as in the 3-D hypervolume sweep).
+    fn insert(&mut self, x: f64, y: f64, bound: Option<(f64, f64)>) -> Option<f64> {
         let at = self.0.partition_point(|q| q.0 <= x);
         if at > 0 && self.0[at - 1].1 <= y {
-            return false;
+            return None;
         }
         let start = self.0.partition_point(|q| q.0 < x);
         let mut end = start;
-        while end < self.0.len() && self.0[end].1 >= y {
-            end += 1;
+        let mut added = 0.0;
+        match bound {
+            None => {
+                while end < self.0.len() && self.0[end].1 >= y {
+                    end += 1;
+                }
+            }
+            Some((rx, ry)) => {
+                let mut h = if start > 0 { self.0[start - 1].1 } else { ry };
+                let mut xcur = x;
+                let mut open = true;
+                while end < self.0.len() {
+                    let (qx, qy) = self.0[end];
+                    added += (qx - xcur) * (h - y);
+                    xcur = qx;
+                    if qy >= y {
+                        h = qy;
+                        end += 1;
+                    } else {
+                        open = false;
+                        break;
+                    }
+                }
+                if open {
+                    added += (rx - xcur) * (h - y);
+                }
+            }
         }
         self.0.splice(start..end, [(x, y)]);
-        true
+        Some(added)
     }
 }
 
@@ -319,6 +380,39 @@ mod tests {
                 }
                 batch.insert_batch(&b);
                 assert_eq!(one, batch);
+            }
+        }
+    }
+
+    #[test]
+    fn hypervolume_measured_in_the_sweep_equals_a_fresh_computation() {
+        // Random real-valued points in the unit cube, reference (1.2, ...): every point
+        // inside, so the sweep measures the hypervolume.
+        let mut state = 777u64;
+        let mut next = || {
+            state = state
+                .wrapping_mul(6364136223846793005)
+                .wrapping_add(1442695040888963407);
+            (state >> 11) as f64 / (1u64 << 53) as f64
+        };
+        for m in [2, 3] {
+            let r = vec![1.2; m];
+            let mut a = Archive::new(None);
+            let mut id = 0;
+            for _ in 0..10 {
+                let b: Vec<Evaluated> = (0..30)
+                    .map(|_| {
+                        id += 1;
+                        let f: Vec<f64> = (0..m).map(|_| next()).collect();
+                        ev(id, &f)
+                    })
+                    .collect();
+                let measured = a.insert_batch_measured(&b, Some(&r)).expect("all inside");
+                let fresh = crate::indicators::hypervolume(&a.objectives(), &r);
+                assert!(
+                    (measured - fresh).abs() <= 1e-12 * fresh,
+                    "{measured} vs {fresh}"
+                );
             }
         }
     }

@@ -354,8 +354,10 @@ impl Run {
             _ => unreachable!("the state always matches the configured algorithm"),
         };
         self.evaluations += new.len() as u64;
-        self.archive.insert_batch(&new);
-        let hv = self.update_hypervolume();
+        let measured = self
+            .archive
+            .insert_batch_measured(&new, self.hv_reference.as_deref());
+        let hv = self.update_hypervolume(measured);
         self.generation += 1;
         let feasible = new.iter().filter(|e| e.is_feasible()).count();
         StepReport {
@@ -371,7 +373,9 @@ impl Run {
         }
     }
 
-    fn update_hypervolume(&mut self) -> f64 {
+    /// Hypervolume after a step; `measured` is the archive's, if the archive update measured
+    /// it with the current reference point.
+    fn update_hypervolume(&mut self, measured: Option<f64>) -> f64 {
         if self.hv_reference.is_none() && !self.archive.is_empty() {
             let pts: Vec<&[f64]> = self
                 .archive
@@ -402,10 +406,11 @@ impl Run {
                     .map(|e| e.objectives.as_slice()),
                 r,
             ),
-            Some(r) => match self.archive.sorted_objectives() {
+            Some(r) => match (measured, self.archive.sorted_objectives()) {
+                (Some(v), _) => v,
                 // The archive keeps its points sorted (two or three objectives): no re-sort.
-                Some(sorted) => hypervolume_sorted(sorted, r),
-                None => hypervolume_of(
+                (None, Some(sorted)) => hypervolume_sorted(sorted, r),
+                (None, None) => hypervolume_of(
                     self.archive
                         .members()
                         .iter()
