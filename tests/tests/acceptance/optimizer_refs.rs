@@ -427,6 +427,10 @@ fn resume_from_checkpoint_equals_uninterrupted_run() {
     let mut c = RunConfig::new(Algorithm::Nsga2(Nsga2Config::default()), 3, 100_000);
     c.archive_epsilon = Some(vec![0.01, 0.01]);
     resume_equals_uninterrupted(c, &z, 7, 9);
+    // Without a grid the archive keeps a sort cache that is not part of the state.
+    let d = Dtlz2 { m: 3, n: 12 };
+    let c = RunConfig::new(Algorithm::Nsga2(Nsga2Config::default()), 6, 100_000);
+    resume_equals_uninterrupted(c, &d, 12, 8);
     let sc = ScalarisedConfig {
         scalarisation: Scalarisation::Chebyshev,
         solver: Solver::NelderMead,
