@@ -674,6 +674,18 @@ fn invalid_settings_are_refused() {
         batch_size: 10,
     };
     assert!(Run::new(RunConfig::new(Algorithm::Screening(sc), 1, 100), &p).is_err());
+    // A state of another version, or not a state at all, is refused with a message.
+    let run = Run::new(
+        RunConfig::new(Algorithm::Nsga2(Nsga2Config::default()), 1, 100),
+        &p,
+    )
+    .unwrap();
+    let other = run.to_json().replacen("\"version\":1", "\"version\":99", 1);
+    assert!(Run::from_json(&other)
+        .unwrap_err()
+        .to_string()
+        .contains("version 99"));
+    assert!(Run::from_json("{}").is_err());
 }
 
 #[test]
