@@ -341,8 +341,24 @@ impl Cell {
             guess.0,
             1e-10 * (1.0 + drive),
         );
-        if v != last.0 {
-            residual(v, &mut last);
+        let dv = v - last.0;
+        if dv != 0.0 {
+            // The last Newton step is tiny: move the last evaluation along its tangent (the
+            // neglected terms are of order dv^2) rather than evaluate again; evaluate when the
+            // step is not tiny or crosses the onset kink of either layer.
+            let dvs = last.3 * dv / last.4;
+            let vs = last.2 + dvs;
+            let tiny = 1e-5;
+            let kink = |a: f64, b: f64, k: f64| (a - k) * (b - k) <= 0.0;
+            if dv.abs() <= tiny
+                && dvs.abs() <= tiny
+                && !kink(last.0, v, prim.onset())
+                && !kink(last.2, vs, sec.onset())
+            {
+                last = (v, last.1 + last.3 * dv, vs, last.3, last.4);
+            } else {
+                residual(v, &mut last);
+            }
         }
         (v, last.2, last.1, last.3, last.4)
     }

@@ -1,0 +1,86 @@
+//! Outlet error against a tight reference (rel_tol 1e-11), steps and point solves, for a range
+//! of integration tolerances: the demo design (invented, for the demo only) at its own voltage
+//! and at 0.5 V, and random designs from a seeded generator (release mode; guides the choice of
+//! the default tolerance).
+use model::*;
+use rand::{Rng, SeedableRng};
+use rand_chacha::ChaCha8Rng;
+
+fn random_design(rng: &mut ChaCha8Rng) -> Design {
+    let mut d = Design::demo();
+    let feed = 10f64.powf(rng.random_range(0.5..2.5));
+    d.water.salt = [Salt::NaCl, Salt::KCl][rng.random_range(0..2)];
+    d.water.temperature_k = rng.random_range(278.15..323.15);
+    d.water.feed_concentration_mol_m3 = feed;
+    d.water.concentrate_feed_concentration_mol_m3 = feed * rng.random_range(0.5..4.0);
+    d.channel.gap_m = rng.random_range(0.2e-3..2e-3);
+    d.channel.concentrate_gap_m = rng.random_range(0.2e-3..2e-3);
+    d.channel.length_m = rng.random_range(0.05..1.5);
+    d.membranes.open_fraction = rng.random_range(0.1..1.0);
+    d.membranes.pitch_m = 10f64.powf(rng.random_range(-5.0..-3.0));
+    d.membranes.pattern_side =
+        [PatternSide::Cem, PatternSide::Aem, PatternSide::Both][rng.random_range(0..3)];
+    d.operation.velocity_m_s = rng.random_range(0.005..0.2);
+    d.operation.concentrate_velocity_m_s = rng.random_range(0.005..0.2);
+    d.operation.drive = Drive::Voltage {
+        cell_pair_voltage_v: rng.random_range(0.02..4.0),
+    };
+    if rng.random_range(0..10) == 0 {
+        d.operation.flow = FlowArrangement::CounterCurrent;
+    }
+    d
+}
+
+fn run(d: &Design, tol: f64) -> Evaluation {
+    let o = Options {
+        rel_tol: tol,
+        profiles: false,
+    };
+    evaluate(d, &RomConstants::default(), &o).unwrap()
+}
+
+fn main() {
+    let tols = [1e-7, 2e-7, 3e-7, 5e-7, 1e-6];
+    let mut demo_low = Design::demo();
+    demo_low.operation.drive = Drive::Voltage {
+        cell_pair_voltage_v: 0.5,
+    };
+    for (name, d) in [("demo", Design::demo()), ("demo 0.5 V", demo_low)] {
+        let r = run(&d, 1e-11).performance.outlet_concentration_mol_m3;
+        for t in tols {
+            let e = run(&d, t);
+            println!(
+                "{name} tol {t:e}: outlet err {:.2e} steps {} solves {}",
+                e.performance.outlet_concentration_mol_m3 / r - 1.0,
+                e.numerics.integration_steps,
+                e.numerics.point_solves
+            );
+        }
+    }
+    let n: usize = std::env::var("STRIA_SWEEP_N")
+        .ok()
+        .and_then(|v| v.parse().ok())
+        .unwrap_or(300);
+    let mut rng = ChaCha8Rng::seed_from_u64(4_242);
+    let designs: Vec<Design> = (0..n).map(|_| random_design(&mut rng)).collect();
+    let refs: Vec<f64> = designs
+        .iter()
+        .map(|d| run(d, 1e-11).performance.outlet_concentration_mol_m3)
+        .collect();
+    for t in tols {
+        let (mut worst, mut solves, mut above) = (0.0f64, 0u64, 0);
+        for (d, r) in designs.iter().zip(&refs) {
+            let e = run(d, t);
+            let err = (e.performance.outlet_concentration_mol_m3 / r - 1.0).abs();
+            if err > 2e-7 {
+                above += 1;
+            }
+            worst = worst.max(err);
+            solves += e.numerics.point_solves;
+        }
+        println!(
+            "random x{n} tol {t:e}: worst outlet err {worst:.2e}, {above} above 2e-7, mean solves {:.1}",
+            solves as f64 / n as f64
+        );
+    }
+}
