@@ -45,6 +45,20 @@ pub fn gauss_legendre(a: f64, b: f64, mut f: impl FnMut(f64) -> f64) -> f64 {
     sum * half
 }
 
+/// Cube root of a positive finite `x`, to within a few units in the last place: a first guess
+/// from the exponent bits (the exponent divided by three), then three Halley steps
+/// y <- y (y^3 + 2x) / (2y^3 + x), each of which cubes the relative error. About three times
+/// cheaper than the correctly rounded library cube root on the hot path.
+#[inline]
+pub fn cbrt_pos(x: f64) -> f64 {
+    let mut y = f64::from_bits(x.to_bits() / 3 + 0x2A9F_7893_782D_A1CE);
+    for _ in 0..3 {
+        let y3 = y * y * y;
+        y *= (y3 + 2.0 * x) / (2.0 * y3 + x);
+    }
+    y
+}
+
 /// Root of an increasing function on a bracket by Newton steps kept inside the bracket.
 ///
 /// `f` returns (value, derivative). Requires f(lo) <= 0 <= f(hi) (not checked: the caller
@@ -196,6 +210,16 @@ mod tests {
     fn gauss_legendre_integrates_degree_23_exactly() {
         let v = gauss_legendre(0.0, 2.0, |x| x.powi(23));
         assert!((v - 2f64.powi(24) / 24.0).abs() < 1e-9 * v);
+    }
+
+    #[test]
+    fn cbrt_pos_agrees_with_the_library_cube_root() {
+        // Reference: the standard library's correctly rounded cube root.
+        let mut x = 1e-30;
+        while x < 1e30 {
+            assert!((cbrt_pos(x) / x.cbrt() - 1.0).abs() < 1e-15, "{x}");
+            x *= 1.013;
+        }
     }
 
     #[test]

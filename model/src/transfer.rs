@@ -8,7 +8,7 @@
 use crate::constants::FARADAY;
 use crate::design::Spacer;
 use crate::hydraulics::ChannelFlow;
-use crate::numerics::gauss_legendre;
+use crate::numerics::{cbrt_pos, gauss_legendre};
 
 /// Fully developed Sherwood number, parallel plates, both walls at constant concentration
 /// (Shah and London, Laminar Flow Forced Convection in Ducts, 1978; Incropera Table 8.1).
@@ -102,7 +102,7 @@ impl SherwoodModel {
         }
         let a3 = self.leveque_a.powi(3) / length_m;
         let b3 = self.fully_developed.powi(3);
-        self.hydraulic_diameter_m * s / (self.multiplier * (a3 + b3 * s * s * s).cbrt())
+        self.hydraulic_diameter_m * s / (self.multiplier * cbrt_pos(a3 + b3 * s * s * s))
     }
 
     /// Length-mean Sherwood number over [0, L], (1/L) integral of Sh(x) dx, by 12-point
