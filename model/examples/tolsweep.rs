@@ -67,13 +67,17 @@ fn main() {
         .iter()
         .map(|d| run(d, 1e-11).performance.outlet_concentration_mol_m3)
         .collect();
+    let mut worst_design = 0;
     for t in tols {
         let (mut worst, mut solves, mut above) = (0.0f64, 0u64, 0);
-        for (d, r) in designs.iter().zip(&refs) {
+        for (j, (d, r)) in designs.iter().zip(&refs).enumerate() {
             let e = run(d, t);
             let err = (e.performance.outlet_concentration_mol_m3 / r - 1.0).abs();
             if err > 2e-7 {
                 above += 1;
+            }
+            if err > worst && t == tols[0] {
+                worst_design = j;
             }
             worst = worst.max(err);
             solves += e.numerics.point_solves;
@@ -82,5 +86,20 @@ fn main() {
             "random x{n} tol {t:e}: worst outlet err {worst:.2e}, {above} above 2e-7, mean solves {:.1}",
             solves as f64 / n as f64
         );
+    }
+    // The worst design at the first tolerance, against ever tighter tolerances.
+    if n > 0 {
+        let d = &designs[worst_design];
+        let r = run(d, 1e-12).performance.outlet_concentration_mol_m3;
+        for t in [1e-6, 1e-7, 1e-8, 1e-9, 1e-10, 1e-11] {
+            let e = run(d, t);
+            println!(
+                "worst design #{worst_design} tol {t:e}: outlet err vs 1e-12 {:.2e} steps {} solves {}",
+                e.performance.outlet_concentration_mol_m3 / r - 1.0,
+                e.numerics.integration_steps,
+                e.numerics.point_solves
+            );
+        }
+        println!("{d:?}");
     }
 }
