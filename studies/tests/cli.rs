@@ -528,11 +528,11 @@ fn run_directory_has_the_contract_columns() {
     };
     assert_eq!(
         head("evaluations.csv"),
-        "id,generation,pitch_m,open_fraction,velocity_m_s,salt_removal_rate_mol_m2_s,specific_energy_kWh_m3,g_product_concentration,g_pressure_drop,g_reynolds,feasible,reason"
+        "id,generation,pitch_m,open_fraction,velocity_m_s,cell_pair_voltage_V,salt_removal_rate_mol_m2_s,specific_energy_kWh_m3,g_product_concentration,g_pressure_drop,g_reynolds,feasible,reason"
     );
     assert_eq!(
         head("front.csv"),
-        "id,pitch_m,open_fraction,velocity_m_s,salt_removal_rate_mol_m2_s,specific_energy_kWh_m3,outlet_concentration_mol_m3,salt_removal_fraction,mean_current_density_A_m2,active_area_fraction,vortex_wavelength_m,pitch_over_wavelength,boundary_layer_thickness_mean_m"
+        "id,pitch_m,open_fraction,velocity_m_s,cell_pair_voltage_V,salt_removal_rate_mol_m2_s,specific_energy_kWh_m3,outlet_concentration_mol_m3,salt_removal_fraction,mean_current_density_A_m2,active_area_fraction,vortex_wavelength_m,pitch_over_wavelength,boundary_layer_thickness_mean_m"
     );
     assert_eq!(
         head("history.csv"),

@@ -51,14 +51,16 @@ pub fn write_run(dir: &Path, objectives: &[&str]) -> Vec<u64> {
         }
     }
     let mut csv = header.join(",") + "\n";
-    // (pitch m, open fraction, velocity m/s): a spread of patterns and flows
+    // (pitch m, open fraction, velocity m/s, cell-pair voltage V): a spread of patterns,
+    // flows and voltages, in the order of the quick demo's variables
     let xs = [
-        [120e-6, 0.5, 0.04],
-        [60e-6, 0.4, 0.02],
-        [250e-6, 0.6, 0.06],
-        [400e-6, 0.8, 0.03],
-        [90e-6, 0.3, 0.08],
+        [120e-6, 0.5, 0.04, 2.0],
+        [60e-6, 0.4, 0.02, 1.5],
+        [250e-6, 0.6, 0.06, 2.5],
+        [400e-6, 0.8, 0.03, 3.0],
+        [90e-6, 0.3, 0.08, 1.8],
     ];
+    assert_eq!(study.variables.len(), xs[0].len(), "fixture follows quick.toml's variables");
     let mut ids = Vec::new();
     for (k, x) in xs.iter().enumerate() {
         let id = 17 + 23 * k as u64;
