@@ -280,11 +280,14 @@ pub fn run(opts: &RunOptions) -> Result<Ended, CliError> {
     )?;
     match ended {
         Ended::Finished(r) => eprintln!(
-            "finished ({r}) after {} evaluations in {} generations; {} designs on the front; written to {}",
+            "finished ({r}) after {} evaluations in {} generations; {} designs on the front; written to {}\n\
+             next: the front is in {d}/front.csv; `stria report {d}` draws it with the unpatterned \
+             baseline, and `stria handoff {d} --pick ID` writes CFD case cards for chosen ids",
             state.run.evaluations(),
             state.run.generation(),
             state.run.archive().len(),
-            dir.display()
+            dir.display(),
+            d = dir.display()
         ),
         Ended::Paused(r) => eprintln!(
             "paused ({r}) after {} generations and {} evaluations; everything is written.\nresume with: stria run {} --out {}",
