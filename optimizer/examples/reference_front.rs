@@ -5,7 +5,9 @@
 //!
 //! The CSV has a header `f1,f2` (or `f1,f2,f3`) and one non-dominated point a row. By default
 //! the front is the non-dominated feasible members of the final population (what other
-//! libraries report); `--front archive` writes every non-dominated design seen instead.
+//! libraries report), and the run is lean as theirs: no archive, no hypervolume history
+//! (`RunConfig::lean`; the population is bit for bit that of a full run). `--front archive`
+//! keeps the archive and writes every non-dominated design seen instead.
 
 use clap::{Parser, ValueEnum};
 use optimizer::problems::{Dtlz2, Zdt, ZdtKind};
@@ -42,7 +44,7 @@ struct Args {
     /// Population size.
     #[arg(long, default_value_t = 100)]
     population: usize,
-    /// Which front to write.
+    /// Which front to write: the final population's (a lean run) or the archive's.
     #[arg(long, value_enum, default_value_t = FrontKind::Population)]
     front: FrontKind,
     /// Output CSV file.
@@ -56,6 +58,10 @@ fn solve(problem: &dyn Problem, args: &Args) -> Result<Vec<Vec<f64>>, String> {
         ..Nsga2Config::default()
     };
     let config = RunConfig::new(Algorithm::Nsga2(nsga), args.seed, args.evals);
+    let config = match args.front {
+        FrontKind::Population => config.lean(),
+        FrontKind::Archive => config,
+    };
     let mut run = Run::new(config, problem).map_err(|e| e.to_string())?;
     run.run(problem, |_, _| {}, &AtomicBool::new(false), None);
     Ok(match args.front {

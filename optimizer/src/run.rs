@@ -59,11 +59,26 @@ pub struct RunConfig {
     pub stall_generations: Option<u64>,
     /// Relative hypervolume growth below which a step counts as stalled.
     pub stall_tolerance: f64,
+    /// Keep the archive of every non-dominated feasible design seen (default). Off, the run
+    /// keeps no archive ([`Run::archive`] stays empty) and the hypervolume, if tracked, is that
+    /// of the current population's feasible members; the designs found are then those of
+    /// [`Run::population`]. Not allowed with the scalarised algorithm, which starts each
+    /// sub-problem from the archive, nor with `archive_epsilon`.
+    #[serde(default = "yes")]
+    pub keep_archive: bool,
+    /// Measure the hypervolume after every step (default). Off, [`Run::hv_history`] stays
+    /// empty and [`StepReport::hypervolume`] is 0; a stall test needs it on.
+    #[serde(default = "yes")]
+    pub track_hypervolume: bool,
+}
+
+fn yes() -> bool {
+    true
 }
 
 impl RunConfig {
-    /// A configuration with no archive grid, an automatic hypervolume reference and no stall
-    /// test.
+    /// A configuration with no archive grid, an automatic hypervolume reference, no stall
+    /// test, and archive and hypervolume history kept.
     pub fn new(algorithm: Algorithm, seed: u64, max_evaluations: u64) -> RunConfig {
         RunConfig {
             algorithm,
@@ -73,7 +88,18 @@ impl RunConfig {
             hv_reference: None,
             stall_generations: None,
             stall_tolerance: 1e-6,
+            keep_archive: true,
+            track_hypervolume: true,
         }
+    }
+
+    /// The same configuration run lean: no archive and no hypervolume history, as other
+    /// libraries run NSGA-II (the designs found are the final population's). The random
+    /// draws, and so the population after every step, are the same as with both kept.
+    pub fn lean(mut self) -> RunConfig {
+        self.keep_archive = false;
+        self.track_hypervolume = false;
+        self
     }
 }
 
@@ -151,8 +177,9 @@ pub struct StepReport {
     pub new: Vec<Evaluated>,
     /// Share of this step's designs that are feasible (0 when none were evaluated).
     pub feasible_share: f64,
-    /// Hypervolume after this step (0 before a reference point exists): of the archive, or
-    /// with NSGA-II and four or more objectives of the population's feasible members.
+    /// Hypervolume after this step (0 before a reference point exists, and always 0 when the
+    /// run does not track it): of the archive, or of the population's feasible members with
+    /// NSGA-II and four or more objectives or when the run keeps no archive.
     pub hypervolume: f64,
 }
 
@@ -233,6 +260,27 @@ impl Run {
         }
         if !(config.stall_tolerance.is_finite() && config.stall_tolerance >= 0.0) {
             return Err(setting("stall_tolerance", "must be finite and >= 0"));
+        }
+        if config.stall_generations.is_some() && !config.track_hypervolume {
+            return Err(setting(
+                "stall_generations",
+                "a stall test judges the hypervolume history: needs track_hypervolume on",
+            ));
+        }
+        if !config.keep_archive {
+            if config.archive_epsilon.is_some() {
+                return Err(setting(
+                    "archive_epsilon",
+                    "an archive grid needs keep_archive on",
+                ));
+            }
+            if matches!(config.algorithm, Algorithm::Scalarised(_)) {
+                return Err(setting(
+                    "keep_archive",
+                    "the scalarised algorithm starts each sub-problem from the archive: \
+                     must be on",
+                ));
+            }
         }
         let mut rng = ChaCha8Rng::seed_from_u64(config.seed);
         let state = match &config.algorithm {
@@ -354,10 +402,22 @@ impl Run {
             _ => unreachable!("the state always matches the configured algorithm"),
         };
         self.evaluations += new.len() as u64;
-        let measured = self
-            .archive
-            .insert_batch_measured(&new, self.hv_reference.as_deref());
-        let hv = self.update_hypervolume(measured);
+        // Neither the archive nor the hypervolume draws a random number: switching them off
+        // leaves the search itself unchanged.
+        let measured = if self.config.keep_archive {
+            let r = self
+                .hv_reference
+                .as_deref()
+                .filter(|_| self.config.track_hypervolume);
+            self.archive.insert_batch_measured(&new, r)
+        } else {
+            None
+        };
+        let hv = if self.config.track_hypervolume {
+            self.update_hypervolume(measured)
+        } else {
+            0.0
+        };
         self.generation += 1;
         let feasible = new.iter().filter(|e| e.is_feasible()).count();
         StepReport {
@@ -376,13 +436,24 @@ impl Run {
     /// Hypervolume after a step; `measured` is the archive's, if the archive update measured
     /// it with the current reference point.
     fn update_hypervolume(&mut self, measured: Option<f64>) -> f64 {
-        if self.hv_reference.is_none() && !self.archive.is_empty() {
-            let pts: Vec<&[f64]> = self
-                .archive
-                .members()
-                .iter()
-                .map(|e| e.objectives.as_slice())
-                .collect();
+        let keep = self.config.keep_archive;
+        if self.hv_reference.is_none() {
+            // Fixed from the first feasible designs found: the archive, or without one the
+            // non-dominated feasible members of the population.
+            let pts: Vec<Vec<f64>> = if keep {
+                self.archive.objectives()
+            } else {
+                let feasible: Vec<Vec<f64>> = self
+                    .population
+                    .iter()
+                    .filter(|e| e.is_feasible())
+                    .map(|e| e.objectives.clone())
+                    .collect();
+                crate::dominance::non_dominated_indices(&feasible)
+                    .into_iter()
+                    .map(|i| feasible[i].clone())
+                    .collect()
+            };
             let r = (0..self.num_objectives)
                 .map(|i| {
                     let hi = pts.iter().map(|p| p[i]).fold(f64::NEG_INFINITY, f64::max);
@@ -395,9 +466,10 @@ impl Run {
         }
         // With four or more objectives the exact hypervolume costs O(n^(m-2) log n), too
         // much for a large archive at every step: NSGA-II then reports the hypervolume of its
-        // population (the feasible members; dominated ones add nothing).
-        let population_hv =
-            self.num_objectives >= 4 && matches!(self.config.algorithm, Algorithm::Nsga2(_));
+        // population (the feasible members; dominated ones add nothing). So does a run
+        // without an archive.
+        let population_hv = !keep
+            || (self.num_objectives >= 4 && matches!(self.config.algorithm, Algorithm::Nsga2(_)));
         let hv = match &self.hv_reference {
             Some(r) if population_hv => hypervolume_of(
                 self.population
@@ -476,7 +548,8 @@ impl Run {
         }
     }
 
-    /// The non-dominated feasible designs found so far.
+    /// The non-dominated feasible designs found so far (empty when the run keeps no
+    /// archive, see [`RunConfig::keep_archive`]).
     pub fn archive(&self) -> &Archive {
         &self.archive
     }
@@ -511,7 +584,8 @@ impl Run {
         self.hv_reference.as_deref()
     }
 
-    /// Hypervolume after each step so far (see [`StepReport::hypervolume`]).
+    /// Hypervolume after each step so far (see [`StepReport::hypervolume`]; empty when the
+    /// run does not track it).
     pub fn hv_history(&self) -> &[f64] {
         &self.hv_history
     }
@@ -537,4 +611,150 @@ fn check_sobol(points: usize, dims: usize) -> Result<(), ConfigError> {
         ));
     }
     Ok(())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::problems::{Dtlz2, Tnk, Zdt, ZdtKind};
+    use crate::screening::ScreeningConfig;
+
+    fn nsga2(seed: u64, evals: u64) -> RunConfig {
+        RunConfig::new(Algorithm::Nsga2(Nsga2Config::default()), seed, evals)
+    }
+
+    fn finish(config: RunConfig, p: &dyn Problem) -> Run {
+        let mut run = Run::new(config, p).unwrap();
+        run.run(p, |_, _| {}, &AtomicBool::new(false), None);
+        run
+    }
+
+    /// Population (ids, variables, objectives, constraints) as JSON: equal strings are equal
+    /// bits (`float_roundtrip`).
+    fn population_json(run: &Run) -> String {
+        serde_json::to_string(run.population()).unwrap()
+    }
+
+    #[test]
+    fn lean_runs_search_exactly_as_full_runs() {
+        // Source: determinism requirement (optimizer design): archive upkeep and hypervolume
+        // draw no random number, so switching them off leaves the population bit for bit the
+        // same. Two objectives (ZDT1), three (DTLZ2, the sorted-sweep archive path) and a
+        // constrained problem (TNK, Deb et al. 2002).
+        let zdt1 = Zdt {
+            kind: ZdtKind::Zdt1,
+            n: 30,
+        };
+        let dtlz2 = Dtlz2 { m: 3, n: 12 };
+        let cases: [(&dyn Problem, u64); 3] = [(&zdt1, 3000), (&dtlz2, 3000), (&Tnk, 2000)];
+        for (p, evals) in cases {
+            let full = finish(nsga2(11, evals), p);
+            assert!(!full.archive().is_empty() && !full.hv_history().is_empty());
+            let mut no_archive = nsga2(11, evals);
+            no_archive.keep_archive = false;
+            let mut no_hv = nsga2(11, evals);
+            no_hv.track_hypervolume = false;
+            for config in [nsga2(11, evals).lean(), no_archive, no_hv] {
+                let (keep, track) = (config.keep_archive, config.track_hypervolume);
+                let run = finish(config, p);
+                assert_eq!(run.evaluations(), evals);
+                assert_eq!(run.generation(), full.generation());
+                assert_eq!(population_json(&run), population_json(&full));
+                assert_eq!(run.archive().is_empty(), !keep);
+                if keep {
+                    assert_eq!(run.archive(), full.archive());
+                }
+                assert_eq!(run.hv_history().is_empty(), !track);
+            }
+        }
+    }
+
+    #[test]
+    fn population_hypervolume_without_an_archive() {
+        // Without an archive the tracked hypervolume is that of the feasible population,
+        // never above the archive's (the archive holds every design the population held), and
+        // the automatic reference point is fixed from the first population's front as it is
+        // from the first archive (the same designs).
+        let p = Zdt {
+            kind: ZdtKind::Zdt2,
+            n: 30,
+        };
+        let full = finish(nsga2(4, 2000), &p);
+        let mut c = nsga2(4, 2000);
+        c.keep_archive = false;
+        let run = finish(c, &p);
+        assert_eq!(run.hv_reference(), full.hv_reference());
+        let r = run.hv_reference().unwrap();
+        let pop = hypervolume_of(run.population().iter().map(|e| e.objectives.as_slice()), r);
+        assert_eq!(run.hv_history().last().unwrap().to_bits(), pop.to_bits());
+        assert_eq!(run.hv_history().len(), full.hv_history().len());
+        for (a, b) in run.hv_history().iter().zip(full.hv_history()) {
+            assert!(*a > 0.0 && *a <= *b * (1.0 + 1e-12), "{a} vs {b}");
+        }
+    }
+
+    #[test]
+    fn lean_state_round_trips_and_old_states_read_as_full() {
+        let p = Dtlz2 { m: 3, n: 12 };
+        let config = nsga2(5, 100_000).lean();
+        let mut straight = Run::new(config.clone(), &p).unwrap();
+        let mut first = Run::new(config, &p).unwrap();
+        for _ in 0..6 {
+            straight.step(&p);
+            first.step(&p);
+        }
+        let mut resumed = Run::from_json(&first.to_json()).unwrap();
+        for _ in 0..4 {
+            straight.step(&p);
+            resumed.step(&p);
+        }
+        assert_eq!(resumed.to_json(), straight.to_json());
+        // A state written before the two switches existed reads as a run keeping both.
+        let full = Run::new(nsga2(5, 1000), &p).unwrap().to_json();
+        let old = full.replacen(",\"keep_archive\":true,\"track_hypervolume\":true", "", 1);
+        assert_ne!(old, full);
+        let read = Run::from_json(&old).unwrap();
+        assert!(read.config().keep_archive && read.config().track_hypervolume);
+        assert_eq!(read.to_json(), full);
+    }
+
+    #[test]
+    fn lean_combinations_that_cannot_work_are_refused() {
+        let p = Zdt {
+            kind: ZdtKind::Zdt1,
+            n: 3,
+        };
+        let field = |c: RunConfig| match Run::new(c, &p) {
+            Err(ConfigError::Setting { field, .. }) => field,
+            other => panic!("expected a setting error, got {other:?}"),
+        };
+        let mut c = nsga2(1, 100);
+        c.track_hypervolume = false;
+        c.stall_generations = Some(5);
+        assert_eq!(field(c), "stall_generations");
+        let mut c = nsga2(1, 100).lean();
+        c.archive_epsilon = Some(vec![0.1, 0.1]);
+        assert_eq!(field(c), "archive_epsilon");
+        let sc = ScalarisedConfig {
+            scalarisation: crate::Scalarisation::Chebyshev,
+            solver: crate::Solver::NelderMead,
+            subproblems: 4,
+            evaluations_per_subproblem: 20,
+            initial_samples: 10,
+        };
+        let sc = RunConfig::new(Algorithm::Scalarised(sc), 1, 100);
+        assert_eq!(field(sc.lean()), "keep_archive");
+        // Screening keeps nothing between batches but its design: lean is allowed.
+        let screen = ScreeningConfig {
+            design: InitialDesign::LatinHypercube,
+            points: 50,
+            batch_size: 20,
+        };
+        let run = finish(
+            RunConfig::new(Algorithm::Screening(screen), 1, 100).lean(),
+            &p,
+        );
+        assert_eq!(run.evaluations(), 50);
+        assert!(run.archive().is_empty());
+    }
 }

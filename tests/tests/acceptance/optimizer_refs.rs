@@ -17,6 +17,10 @@ use std::sync::atomic::AtomicBool;
 
 fn nsga2_run(problem: &dyn Problem, seed: u64, evals: u64) -> Run {
     let config = RunConfig::new(Algorithm::Nsga2(Nsga2Config::default()), seed, evals);
+    finish(config, problem)
+}
+
+fn finish(config: RunConfig, problem: &dyn Problem) -> Run {
     let mut run = Run::new(config, problem).expect("valid configuration");
     let stop = run.run(problem, |_, _| {}, &AtomicBool::new(false), None);
     assert_eq!(stop, StopReason::EvaluationBudget);
@@ -65,11 +69,24 @@ fn nsga2_zdt1_reaches_the_analytic_front() {
         kind: ZdtKind::Zdt1,
         n: 30,
     };
+    let reference = p.reference_front(1001);
     for seed in [1, 2] {
-        let (d, hv) = quality(&p, &p.reference_front(1001), 0.876667, seed, ZDT_EVALS);
+        let (d, hv) = quality(&p, &reference, 0.876667, seed, ZDT_EVALS);
         assert!(d < 0.012, "IGD {d}");
         assert!(hv > 0.98, "HV ratio {hv}");
     }
+    // Run lean (no archive, no hypervolume history, as other libraries run NSGA-II): the
+    // same tolerances hold, and the final front is bit for bit that of the full run.
+    let config = RunConfig::new(Algorithm::Nsga2(Nsga2Config::default()), 1, ZDT_EVALS);
+    let lean = finish(config.lean(), &p);
+    assert!(lean.archive().is_empty() && lean.hv_history().is_empty());
+    let front = population_front(&lean);
+    let d = igd(&front, &reference);
+    let hv = hypervolume(&front, &[1.1, 1.1]) / 0.876667;
+    println!("lean seed 1: IGD {d:.5}, HV ratio {hv:.5}");
+    assert!(d < 0.012, "IGD {d}");
+    assert!(hv > 0.98, "HV ratio {hv}");
+    assert_eq!(front, population_front(&nsga2_run(&p, 1, ZDT_EVALS)));
 }
 
 #[test]
