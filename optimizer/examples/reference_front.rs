@@ -128,7 +128,7 @@ fn main() {
         std::process::exit(1);
     }
     eprintln!(
-        "{} points written to {} in {:.3} s",
+        "{} points written to {} in {:.6} s",
         front.len(),
         args.out.display(),
         started.elapsed().as_secs_f64()

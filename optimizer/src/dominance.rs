@@ -4,6 +4,13 @@
 use crate::problem::Evaluated;
 use std::cmp::Ordering;
 
+/// [`dominates`] for three objectives, written out (the same result, NaN included).
+#[inline]
+fn dominates3(a: &[f64], b: &[f64]) -> bool {
+    let (a, b) = (&a[..3], &b[..3]);
+    !(a[0] > b[0] || a[1] > b[1] || a[2] > b[2]) && (a[0] < b[0] || a[1] < b[1] || a[2] < b[2])
+}
+
 /// `a` Pareto-dominates `b` (all objectives minimised): no worse in all, better in one.
 pub fn dominates(a: &[f64], b: &[f64]) -> bool {
     let mut better = false;
@@ -53,22 +60,40 @@ pub fn non_dominated_sort(pop: &[Evaluated]) -> (Vec<Vec<usize>>, Vec<usize>) {
             .then(a.cmp(&b))
     });
     let mut fronts: Vec<Vec<usize>> = Vec::new();
+    // The feasible designs' objectives side by side in lexicographic order (a front is
+    // searched through this copy, not through the designs), and each front's members as
+    // positions in it.
+    let m = feasible.first().map_or(0, |&i| pop[i].objectives.len());
+    let mut flat: Vec<f64> = Vec::with_capacity(m * feasible.len());
     for &i in &feasible {
-        let f = &pop[i].objectives;
-        // Only a design earlier in lexicographic order can dominate this one.
-        let k = fronts
+        flat.extend_from_slice(&pop[i].objectives);
+    }
+    let row = |p: usize| &flat[p * m..(p + 1) * m];
+    let mut members: Vec<Vec<usize>> = Vec::new();
+    for (p, &i) in feasible.iter().enumerate() {
+        let f = row(p);
+        // Only a design earlier in lexicographic order can dominate this one. With two
+        // objectives a front's last member has its lowest second objective, so it dominates
+        // a later design whenever any member does: one test a front instead of one a member.
+        let k = members
             .iter()
             .position(|front| {
-                !front
-                    .iter()
-                    .rev()
-                    .any(|&j| dominates(&pop[j].objectives, f))
+                if m == 2 {
+                    let last = *front.last().expect("a front is never empty");
+                    !dominates(row(last), f)
+                } else if m == 3 {
+                    !front.iter().rev().any(|&q| dominates3(row(q), f))
+                } else {
+                    !front.iter().rev().any(|&q| dominates(row(q), f))
+                }
             })
             .unwrap_or(fronts.len());
         if k == fronts.len() {
             fronts.push(Vec::new());
+            members.push(Vec::new());
         }
         fronts[k].push(i);
+        members[k].push(p);
     }
     infeasible.sort_by(|&a, &b| {
         pop[a]
@@ -148,26 +173,23 @@ pub fn crowding_distance(pop: &[Evaluated], front: &[usize]) -> Vec<f64> {
         return d;
     }
     let m = pop[front[with_obj[0]]].objectives.len();
+    let mut order: Vec<(f64, usize)> = Vec::with_capacity(with_obj.len());
     for obj in 0..m {
-        let mut order = with_obj.clone();
-        // Stable sort with ties broken by position: deterministic.
-        order.sort_by(|&a, &b| {
-            pop[front[a]].objectives[obj]
-                .total_cmp(&pop[front[b]].objectives[obj])
-                .then(a.cmp(&b))
-        });
-        let lo = pop[front[order[0]]].objectives[obj];
-        let hi = pop[front[*order.last().expect("non-empty")]].objectives[obj];
-        d[order[0]] = f64::INFINITY;
-        d[*order.last().expect("non-empty")] = f64::INFINITY;
+        order.clear();
+        order.extend(with_obj.iter().map(|&k| (pop[front[k]].objectives[obj], k)));
+        // Ties broken by position: a total order, so the result is deterministic.
+        order.sort_unstable_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)));
+        let (lo, first) = order[0];
+        let (hi, last) = *order.last().expect("non-empty");
+        d[first] = f64::INFINITY;
+        d[last] = f64::INFINITY;
         let span = hi - lo;
         if span <= 0.0 {
             continue;
         }
         for w in 1..order.len() - 1 {
-            let prev = pop[front[order[w - 1]]].objectives[obj];
-            let next = pop[front[order[w + 1]]].objectives[obj];
-            d[order[w]] += (next - prev) / span;
+            let (prev, next) = (order[w - 1].0, order[w + 1].0);
+            d[order[w].1] += (next - prev) / span;
         }
     }
     d

@@ -176,10 +176,34 @@ impl std::hash::Hasher for BitsHasher {
     }
 }
 
-type Seen = HashSet<Vec<u64>, std::hash::BuildHasherDefault<BitsHasher>>;
+type BuildBits = std::hash::BuildHasherDefault<BitsHasher>;
 
-fn key(x: &[f64]) -> Vec<u64> {
-    x.iter().map(|v| v.to_bits()).collect()
+/// A design's variables compared and hashed bit for bit (no copy).
+struct Bits<'a>(&'a [f64]);
+
+impl PartialEq for Bits<'_> {
+    fn eq(&self, other: &Self) -> bool {
+        same_bits(self.0, other.0)
+    }
+}
+
+impl Eq for Bits<'_> {}
+
+impl std::hash::Hash for Bits<'_> {
+    fn hash<H: std::hash::Hasher>(&self, state: &mut H) {
+        for v in self.0 {
+            state.write_u64(v.to_bits());
+        }
+    }
+}
+
+fn same_bits(a: &[f64], b: &[f64]) -> bool {
+    a.len() == b.len() && a.iter().zip(b).all(|(x, y)| x.to_bits() == y.to_bits())
+}
+
+fn bits_hash(x: &[f64]) -> u64 {
+    use std::hash::BuildHasher;
+    BuildBits::default().hash_one(Bits(x))
 }
 
 /// The initial population: `count` points of the configured design.
@@ -207,8 +231,13 @@ pub(crate) fn offspring(
     let pm = cfg
         .mutation_probability
         .unwrap_or(1.0 / vars.len().max(1) as f64);
-    let mut seen = Seen::with_capacity_and_hasher(2 * (n + count), Default::default());
-    seen.extend(pop.iter().map(|e| key(&e.x)));
+    // Designs seen: the parents (borrowed), and the offspring kept so far by hash, checked
+    // bit for bit against `out` on a hash match.
+    let mut parents: HashSet<Bits, BuildBits> =
+        HashSet::with_capacity_and_hasher(2 * n, Default::default());
+    parents.extend(pop.iter().map(|e| Bits(&e.x)));
+    let mut kept: HashSet<u64, BuildBits> =
+        HashSet::with_capacity_and_hasher(2 * count, Default::default());
     let mut out: Vec<Vec<f64>> = Vec::with_capacity(count);
     let mut tries = 0usize;
     let max_tries = 20 * count + 100;
@@ -244,11 +273,13 @@ pub(crate) fn offspring(
                 break;
             }
             tries += 1;
-            let k = key(&c);
-            if seen.contains(&k) && tries <= max_tries {
+            let h = bits_hash(&c);
+            let seen = parents.contains(&Bits(&c))
+                || (kept.contains(&h) && out.iter().any(|o| same_bits(o, &c)));
+            if seen && tries <= max_tries {
                 continue;
             }
-            seen.insert(k);
+            kept.insert(h);
             out.push(c);
         }
     }
@@ -305,6 +336,40 @@ mod tests {
             let (mut a, b) = sbx(&p1, &p2, &v, 20.0, &mut rng);
             polynomial_mutation(&mut a, &v, 20.0, 1.0, &mut rng);
             assert!(a.iter().chain(&b).all(|x| (0.0..=1.0).contains(x)));
+        }
+    }
+
+    #[test]
+    fn offspring_never_repeat_a_parent_or_each_other() {
+        // Duplicate elimination (as in the module doc): without crossover and with mutation
+        // of one variable in two, about half of all candidates are copies of a parent; none
+        // may be kept while the tries last.
+        let v = vars(1);
+        let mut rng = ChaCha8Rng::seed_from_u64(8);
+        let pop: Vec<Evaluated> = (0..20)
+            .map(|i| Evaluated {
+                id: i,
+                generation: 0,
+                x: vec![i as f64 / 20.0],
+                objectives: vec![i as f64, 20.0 - i as f64],
+                constraints: vec![],
+                violation: 0.0,
+                failure: None,
+            })
+            .collect();
+        let cfg = Nsga2Config {
+            crossover_probability: 0.0,
+            mutation_probability: Some(0.5),
+            ..Nsga2Config::default()
+        };
+        let out = offspring(&cfg, &v, &mut rng, &pop, 20);
+        assert_eq!(out.len(), 20);
+        for (k, c) in out.iter().enumerate() {
+            assert!(
+                pop.iter().all(|e| !same_bits(&e.x, c)),
+                "{c:?} repeats a parent"
+            );
+            assert!(out[..k].iter().all(|o| !same_bits(o, c)), "{c:?} repeated");
         }
     }
 
