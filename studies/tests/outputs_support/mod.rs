@@ -60,7 +60,11 @@ pub fn write_run(dir: &Path, objectives: &[&str]) -> Vec<u64> {
         [400e-6, 0.8, 0.03, 3.0],
         [90e-6, 0.3, 0.08, 1.8],
     ];
-    assert_eq!(study.variables.len(), xs[0].len(), "fixture follows quick.toml's variables");
+    assert_eq!(
+        study.variables.len(),
+        xs[0].len(),
+        "fixture follows quick.toml's variables"
+    );
     let mut ids = Vec::new();
     for (k, x) in xs.iter().enumerate() {
         let id = 17 + 23 * k as u64;
