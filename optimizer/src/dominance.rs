@@ -2,6 +2,7 @@
 //! (Deb, Pratap, Agarwal and Meyarivan, IEEE Trans. Evol. Comput. 6 (2002) 182).
 
 use crate::problem::Evaluated;
+use std::borrow::Borrow;
 use std::cmp::Ordering;
 
 /// [`dominates`] for three objectives, written out (the same result, NaN included).
@@ -46,28 +47,37 @@ pub fn constrained_dominates(a: &Evaluated, b: &Evaluated) -> bool {
 /// objectives, each placed in the first front none of whose members dominates it. Infeasible
 /// designs follow in fronts of equal violation, least violation first (constrained
 /// domination orders them by violation alone).
-pub fn non_dominated_sort(pop: &[Evaluated]) -> (Vec<Vec<usize>>, Vec<usize>) {
+pub fn non_dominated_sort<E: Borrow<Evaluated>>(pop: &[E]) -> (Vec<Vec<usize>>, Vec<usize>) {
     let n = pop.len();
-    let mut feasible: Vec<usize> = (0..n).filter(|&i| pop[i].is_feasible()).collect();
-    let mut infeasible: Vec<usize> = (0..n).filter(|&i| !pop[i].is_feasible()).collect();
-    feasible.sort_by(|&a, &b| {
-        let (fa, fb) = (&pop[a].objectives, &pop[b].objectives);
-        fa.iter()
-            .zip(fb)
-            .map(|(x, y)| x.total_cmp(y))
-            .find(|o| o.is_ne())
-            .unwrap_or(Ordering::Equal)
-            .then(a.cmp(&b))
-    });
+    let ev = |i: usize| pop[i].borrow();
+    let feasible: Vec<usize> = (0..n).filter(|&i| ev(i).is_feasible()).collect();
+    let mut infeasible: Vec<usize> = (0..n).filter(|&i| !ev(i).is_feasible()).collect();
+    let m = feasible.first().map_or(0, |&i| ev(i).objectives.len());
+    // The feasible designs' objectives side by side in lexicographic order (ties by index; a
+    // front is searched through this copy, not through the designs), and each front's
+    // members as positions in it. Two and three objectives sort fixed-size keys.
+    let (feasible, flat) = match m {
+        2 => lexicographic::<2, E>(pop, &feasible),
+        3 => lexicographic::<3, E>(pop, &feasible),
+        _ => {
+            let mut feasible = feasible;
+            feasible.sort_unstable_by(|&a, &b| {
+                let (fa, fb) = (&ev(a).objectives, &ev(b).objectives);
+                fa.iter()
+                    .zip(fb)
+                    .map(|(x, y)| x.total_cmp(y))
+                    .find(|o| o.is_ne())
+                    .unwrap_or(Ordering::Equal)
+                    .then(a.cmp(&b))
+            });
+            let mut flat: Vec<f64> = Vec::with_capacity(m * feasible.len());
+            for &i in &feasible {
+                flat.extend_from_slice(&ev(i).objectives);
+            }
+            (feasible, flat)
+        }
+    };
     let mut fronts: Vec<Vec<usize>> = Vec::new();
-    // The feasible designs' objectives side by side in lexicographic order (a front is
-    // searched through this copy, not through the designs), and each front's members as
-    // positions in it.
-    let m = feasible.first().map_or(0, |&i| pop[i].objectives.len());
-    let mut flat: Vec<f64> = Vec::with_capacity(m * feasible.len());
-    for &i in &feasible {
-        flat.extend_from_slice(&pop[i].objectives);
-    }
     let row = |p: usize| &flat[p * m..(p + 1) * m];
     let mut members: Vec<Vec<usize>> = Vec::new();
     for (p, &i) in feasible.iter().enumerate() {
@@ -95,15 +105,10 @@ pub fn non_dominated_sort(pop: &[Evaluated]) -> (Vec<Vec<usize>>, Vec<usize>) {
         fronts[k].push(i);
         members[k].push(p);
     }
-    infeasible.sort_by(|&a, &b| {
-        pop[a]
-            .violation
-            .total_cmp(&pop[b].violation)
-            .then(a.cmp(&b))
-    });
+    infeasible.sort_by(|&a, &b| ev(a).violation.total_cmp(&ev(b).violation).then(a.cmp(&b)));
     let mut last_violation: Option<f64> = None;
     for &i in &infeasible {
-        let v = pop[i].violation;
+        let v = ev(i).violation;
         if last_violation.is_some_and(|w| w.total_cmp(&v).is_eq()) {
             fronts.last_mut().expect("a front was opened").push(i);
         } else {
@@ -119,6 +124,37 @@ pub fn non_dominated_sort(pop: &[Evaluated]) -> (Vec<Vec<usize>>, Vec<usize>) {
         }
     }
     (fronts, rank)
+}
+
+/// The members `feasible` of `pop` (all with `M` objectives) in lexicographic order of their
+/// objectives (`total_cmp`, ties by index: a total order, so an unstable sort gives the one
+/// result), and their objectives side by side in that order.
+fn lexicographic<const M: usize, E: Borrow<Evaluated>>(
+    pop: &[E],
+    feasible: &[usize],
+) -> (Vec<usize>, Vec<f64>) {
+    let mut keyed: Vec<([i64; M], usize)> = feasible
+        .iter()
+        .map(|&i| {
+            let o = &pop[i].borrow().objectives;
+            (std::array::from_fn(|j| total_key(o[j])), i)
+        })
+        .collect();
+    keyed.sort_unstable();
+    let order: Vec<usize> = keyed.iter().map(|k| k.1).collect();
+    let mut flat = Vec::with_capacity(M * order.len());
+    for &i in &order {
+        flat.extend_from_slice(&pop[i].borrow().objectives[..M]);
+    }
+    (order, flat)
+}
+
+/// An integer that orders as `f64::total_cmp` orders `x` (the same bit transform): sorting
+/// by it gives the same order with integer comparisons.
+#[inline]
+fn total_key(x: f64) -> i64 {
+    let b = x.to_bits() as i64;
+    b ^ (((b >> 63) as u64) >> 1) as i64
 }
 
 /// The fronts by the O(M N^2) fast non-dominated sort of Deb et al. (2002), section III-A,
@@ -157,11 +193,12 @@ pub fn non_dominated_sort_reference(pop: &[Evaluated]) -> Vec<Vec<usize>> {
 /// Crowding distance of each member of one front (Deb et al. 2002, section III-B): the sum
 /// over objectives of the normalised side lengths of the cuboid formed by the two neighbours;
 /// boundary members get infinity. Failed members (no objectives) get zero.
-pub fn crowding_distance(pop: &[Evaluated], front: &[usize]) -> Vec<f64> {
+pub fn crowding_distance<E: Borrow<Evaluated>>(pop: &[E], front: &[usize]) -> Vec<f64> {
     let n = front.len();
+    let ev = |i: usize| pop[i].borrow();
     let mut d = vec![0.0; n];
     let with_obj: Vec<usize> = (0..n)
-        .filter(|&k| !pop[front[k]].objectives.is_empty())
+        .filter(|&k| !ev(front[k]).objectives.is_empty())
         .collect();
     if with_obj.is_empty() {
         return d;
@@ -172,13 +209,25 @@ pub fn crowding_distance(pop: &[Evaluated], front: &[usize]) -> Vec<f64> {
         }
         return d;
     }
-    let m = pop[front[with_obj[0]]].objectives.len();
+    let m = ev(front[with_obj[0]]).objectives.len();
+    let mut keyed: Vec<(i64, usize)> = Vec::with_capacity(with_obj.len());
     let mut order: Vec<(f64, usize)> = Vec::with_capacity(with_obj.len());
     for obj in 0..m {
+        keyed.clear();
+        keyed.extend(
+            with_obj
+                .iter()
+                .map(|&k| (total_key(ev(front[k]).objectives[obj]), k)),
+        );
+        // Ties broken by position: a total order (`total_cmp`, then position), so the
+        // result is deterministic.
+        keyed.sort_unstable();
         order.clear();
-        order.extend(with_obj.iter().map(|&k| (pop[front[k]].objectives[obj], k)));
-        // Ties broken by position: a total order, so the result is deterministic.
-        order.sort_unstable_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)));
+        order.extend(
+            keyed
+                .iter()
+                .map(|&(_, k)| (ev(front[k]).objectives[obj], k)),
+        );
         let (lo, first) = order[0];
         let (hi, last) = *order.last().expect("non-empty");
         d[first] = f64::INFINITY;

@@ -143,9 +143,33 @@ fn polynomial_mutation(x: &mut [f64], vars: &[Variable], eta: f64, pm: f64, rng:
 /// indices are), otherwise `powf`.
 fn pow(x: f64, e: f64) -> f64 {
     if e.fract() == 0.0 && e.abs() <= 64.0 {
-        x.powi(e as i32)
+        powi(x, e as i32)
     } else {
         x.powf(e)
+    }
+}
+
+/// `x^k` by binary powering, the same multiplications in the same order as `f64::powi` does
+/// them (`__powidf2`), so the same bits (unit test `inline_powi_equals_std_powi`), but inlined:
+/// no call per use.
+#[inline]
+fn powi(mut x: f64, k: i32) -> f64 {
+    let mut bits = k.unsigned_abs();
+    let mut acc = 1.0;
+    loop {
+        if bits & 1 != 0 {
+            acc *= x;
+        }
+        bits >>= 1;
+        if bits == 0 {
+            break;
+        }
+        x *= x;
+    }
+    if k < 0 {
+        1.0 / acc
+    } else {
+        acc
     }
 }
 
@@ -224,9 +248,13 @@ pub(crate) fn offspring(
     vars: &[Variable],
     rng: &mut ChaCha8Rng,
     pop: &[Evaluated],
+    ranking: Option<Ranking>,
     count: usize,
 ) -> Vec<Vec<f64>> {
-    let (rank, crowd) = rank_and_crowding(pop);
+    let (rank, crowd) = match ranking {
+        Some(r) if r.0.len() == pop.len() => r,
+        _ => rank_and_crowding(pop),
+    };
     let n = pop.len();
     let pm = cfg
         .mutation_probability
@@ -286,33 +314,79 @@ pub(crate) fn offspring(
     out
 }
 
-/// Elitist survival: the best `n` of `merged` by constrained non-dominated rank, the last
-/// front cut by crowding distance (ties kept in index order, so the result is deterministic).
-pub(crate) fn survive(merged: Vec<Evaluated>, n: usize) -> Vec<Evaluated> {
-    if merged.len() <= n {
-        return merged;
+/// Rank and crowding distance of every member of a population, as
+/// [`rank_and_crowding`] gives them.
+pub(crate) type Ranking = (Vec<usize>, Vec<f64>);
+
+/// A population's [`Ranking`] kept from its survival for the next generation's tournament.
+/// Derived from the population alone, it is not part of a run's state: it is not serialised,
+/// does not count in comparisons, and is recomputed when missing (after a resume).
+#[derive(Debug, Clone, Default)]
+pub(crate) struct RankingCache(pub(crate) Option<Ranking>);
+
+impl PartialEq for RankingCache {
+    fn eq(&self, _: &Self) -> bool {
+        true
     }
+}
+
+/// Elitist survival: the best `n` of the population and its offspring `new` (taken together in
+/// that order) by constrained non-dominated rank, the last front cut by crowding distance
+/// (ties kept in index order, so the result is deterministic). Only the offspring that survive
+/// are copied. Also returns the survivors' ranking, the same as [`rank_and_crowding`] of
+/// them: every front but the last one taken is whole and in the same order, so its ranks and
+/// crowding distances carry over; the last one's distances are measured again among the
+/// members kept. `None` when everyone survives without a sort.
+pub(crate) fn survive(
+    population: Vec<Evaluated>,
+    new: &[Evaluated],
+    n: usize,
+) -> (Vec<Evaluated>, Option<Ranking>) {
+    if population.len() + new.len() <= n {
+        let mut all = population;
+        all.extend_from_slice(new);
+        return (all, None);
+    }
+    let merged: Vec<&Evaluated> = population.iter().chain(new).collect();
     let (fronts, _) = non_dominated_sort(&merged);
     let mut chosen: Vec<usize> = Vec::with_capacity(n);
-    for front in fronts {
+    let mut rank: Vec<usize> = Vec::with_capacity(n);
+    let mut crowd: Vec<f64> = Vec::with_capacity(n);
+    let mut cut: Option<std::ops::Range<usize>> = None;
+    for (r, front) in fronts.into_iter().enumerate() {
+        let d = crowding_distance(&merged, &front);
         if chosen.len() + front.len() <= n {
             chosen.extend_from_slice(&front);
+            crowd.extend_from_slice(&d);
         } else {
-            let d = crowding_distance(&merged, &front);
             let mut order: Vec<usize> = (0..front.len()).collect();
             order.sort_by(|&a, &b| d[b].total_cmp(&d[a]).then(a.cmp(&b)));
             let need = n - chosen.len();
+            cut = Some(chosen.len()..n);
             chosen.extend(order.into_iter().take(need).map(|k| front[k]));
+            crowd.resize(n, 0.0);
         }
+        rank.resize(chosen.len(), r);
         if chosen.len() >= n {
             break;
         }
     }
-    let mut slots: Vec<Option<Evaluated>> = merged.into_iter().map(Some).collect();
-    chosen
+    drop(merged);
+    let old = population.len();
+    let mut slots: Vec<Option<Evaluated>> = population.into_iter().map(Some).collect();
+    let survivors: Vec<Evaluated> = chosen
         .into_iter()
-        .map(|i| slots[i].take().expect("each chosen once"))
-        .collect()
+        .map(|i| match i.checked_sub(old) {
+            Some(k) => new[k].clone(),
+            None => slots[i].take().expect("each chosen once"),
+        })
+        .collect();
+    if let Some(range) = cut {
+        let members: Vec<usize> = range.clone().collect();
+        let d = crowding_distance(&survivors, &members);
+        crowd[range].copy_from_slice(&d);
+    }
+    (survivors, Some((rank, crowd)))
 }
 
 #[cfg(test)]
@@ -362,7 +436,7 @@ mod tests {
             mutation_probability: Some(0.5),
             ..Nsga2Config::default()
         };
-        let out = offspring(&cfg, &v, &mut rng, &pop, 20);
+        let out = offspring(&cfg, &v, &mut rng, &pop, None, 20);
         assert_eq!(out.len(), 20);
         for (k, c) in out.iter().enumerate() {
             assert!(
@@ -370,6 +444,61 @@ mod tests {
                 "{c:?} repeats a parent"
             );
             assert!(out[..k].iter().all(|o| !same_bits(o, c)), "{c:?} repeated");
+        }
+    }
+
+    #[test]
+    fn survivors_ranking_equals_a_fresh_ranking() {
+        // The ranking kept from survival must be exactly `rank_and_crowding` of the survivors
+        // (the fast non-dominated sort and crowding distance of Deb et al. 2002), including
+        // tied objectives, infeasible and failed members, and a cut through the last front.
+        let mut rng = ChaCha8Rng::seed_from_u64(21);
+        for case in 0..300 {
+            let m = 2 + case % 3;
+            let member = |id: u64, rng: &mut ChaCha8Rng| {
+                let kind: f64 = rng.random();
+                let objectives: Vec<f64> = (0..m)
+                    .map(|_| f64::from(rng.random_range(0..6u8)))
+                    .collect();
+                let failed = kind > 0.95;
+                Evaluated {
+                    id,
+                    generation: 0,
+                    x: vec![id as f64],
+                    objectives: if failed { vec![] } else { objectives },
+                    constraints: vec![],
+                    violation: if failed {
+                        f64::MAX
+                    } else if kind < 0.15 {
+                        f64::from(rng.random_range(1..4u8))
+                    } else {
+                        0.0
+                    },
+                    failure: failed.then(|| "failed".to_string()),
+                }
+            };
+            let pop: Vec<Evaluated> = (0..30).map(|i| member(i, &mut rng)).collect();
+            let new: Vec<Evaluated> = (30..60).map(|i| member(i, &mut rng)).collect();
+            let (survivors, ranking) = survive(pop, &new, 30);
+            let (rank, crowd) = ranking.expect("a sort was needed");
+            let (want_rank, want_crowd) = rank_and_crowding(&survivors);
+            assert_eq!(rank, want_rank, "case {case}");
+            let bits = |v: &[f64]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
+            assert_eq!(bits(&crowd), bits(&want_crowd), "case {case}");
+        }
+    }
+
+    #[test]
+    fn inline_powi_equals_std_powi() {
+        // Reference: the standard library's `f64::powi`, bit for bit, over the exponents the
+        // distribution indices give (eta + 1 and its negative) and a few more.
+        let mut rng = ChaCha8Rng::seed_from_u64(12);
+        for k in (-65..=65).chain([i32::MIN + 1, i32::MAX]) {
+            for _ in 0..200 {
+                let x: f64 = rng.random_range(-3.0..3.0);
+                let want = std::hint::black_box(x).powi(std::hint::black_box(k));
+                assert_eq!(powi(x, k).to_bits(), want.to_bits(), "{x}^{k}");
+            }
         }
     }
 

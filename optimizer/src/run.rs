@@ -3,7 +3,7 @@
 use crate::archive::Archive;
 use crate::doe::{self, InitialDesign};
 use crate::indicators::{hypervolume_of, hypervolume_sorted};
-use crate::nsga2::{self, Nsga2Config};
+use crate::nsga2::{self, Nsga2Config, RankingCache};
 use crate::problem::{evaluate_batch, Evaluated, Problem, Variable};
 use crate::scalarised::{self, ScalarisedConfig, ScalarisedState};
 use crate::screening::{self, ScreeningConfig, ScreeningState};
@@ -209,6 +209,9 @@ pub struct Run {
     hv_reference: Option<Vec<f64>>,
     hv_history: Vec<f64>,
     state: AlgoState,
+    /// The NSGA-II population's ranking, kept from survival (not part of the state).
+    #[serde(skip)]
+    ranking: RankingCache,
 }
 
 impl Run {
@@ -317,6 +320,7 @@ impl Run {
             population: Vec::new(),
             hv_history: Vec::new(),
             state,
+            ranking: RankingCache::default(),
         })
     }
 
@@ -369,12 +373,20 @@ impl Run {
                 let xs = if self.population.is_empty() {
                     nsga2::initial(c, &self.variables, &mut self.rng, n)
                 } else {
-                    nsga2::offspring(c, &self.variables, &mut self.rng, &self.population, n)
+                    nsga2::offspring(
+                        c,
+                        &self.variables,
+                        &mut self.rng,
+                        &self.population,
+                        self.ranking.0.take(),
+                        n,
+                    )
                 };
                 let new = evaluate_batch(problem, xs, self.evaluations, generation);
-                let mut merged = std::mem::take(&mut self.population);
-                merged.extend(new.iter().cloned());
-                self.population = nsga2::survive(merged, c.population_size);
+                let population = std::mem::take(&mut self.population);
+                let (survivors, ranking) = nsga2::survive(population, &new, c.population_size);
+                self.population = survivors;
+                self.ranking = RankingCache(ranking);
                 new
             }
             (Algorithm::Scalarised(c), AlgoState::Scalarised(s)) => {
