@@ -260,9 +260,38 @@ struct Rhs<'a> {
     delta_c_mean: f64,
     guess: Guess,
     /// The last two points (s, solution) for the warm start.
-    history: [(f64, Guess); 2],
+    history: [(f64, Guess); 3],
     evaluations: u32,
 }
+
+/// The layer voltages at `s` predicted by the quadratic through the three history points
+/// (None when they are not all solved points or `s` lies too far outside their span).
+fn predict(h: &[(f64, Guess); 3], s: f64) -> Option<(f64, f64)> {
+    let [(s0, g0), (s1, g1), (s2, g2)] = *h;
+    if h.iter().any(|(_, g)| g.slope_cem <= 0.0) {
+        return None;
+    }
+    let lo = s0.min(s1).min(s2);
+    let hi = s0.max(s1).max(s2);
+    let span = hi - lo;
+    if !(span > 0.0) || s < lo - MAX_EXTRAPOLATION * span || s > hi + MAX_EXTRAPOLATION * span {
+        return None;
+    }
+    let l0 = (s - s1) * (s - s2) / ((s0 - s1) * (s0 - s2));
+    let l1 = (s - s0) * (s - s2) / ((s1 - s0) * (s1 - s2));
+    let l2 = (s - s0) * (s - s1) / ((s2 - s0) * (s2 - s1));
+    if !(l0.is_finite() && l1.is_finite() && l2.is_finite()) {
+        return None;
+    }
+    Some((
+        l0 * g0.v_cem + l1 * g1.v_cem + l2 * g2.v_cem,
+        l0 * g0.v_aem + l1 * g1.v_aem + l2 * g2.v_aem,
+    ))
+}
+
+/// How far (in units of the span of the history points) the warm-start quadratic is
+/// extrapolated.
+const MAX_EXTRAPOLATION: f64 = 3.0;
 
 impl Rhs<'_> {
     fn c_c(&self, c_d: f64) -> f64 {
@@ -287,23 +316,18 @@ impl Rhs<'_> {
         let c_c = self.c_c(c_d).max(1e-12 * self.streams.c_d_in);
         let p = cell.point(delta_d, delta_c, c_d, c_c);
         self.evaluations += 1;
-        // Warm start: extrapolate the layer voltages linearly in s from the last two
-        // points when moving forward (Runge-Kutta stages mostly do).
-        let (s1, g1) = self.history[1];
-        let (s0, g0) = self.history[0];
-        if s > s1
-            && s1 > s0
-            && s - s1 <= 2.0 * (s1 - s0)
-            && g1.slope_cem > 0.0
-            && g0.slope_cem > 0.0
-        {
-            let r = (s - s1) / (s1 - s0);
-            self.guess.v_cem = (g1.v_cem + r * (g1.v_cem - g0.v_cem)).max(0.0);
-            self.guess.v_aem = (g1.v_aem + r * (g1.v_aem - g0.v_aem)).max(0.0);
+        // Warm start: the layer voltages extrapolated (or interpolated) in s along a
+        // quadratic through the last three points of distinct s.
+        if let Some((vc, va)) = predict(&self.history, s) {
+            self.guess.v_cem = vc.max(0.0);
+            self.guess.v_aem = va.max(0.0);
         }
         let sol = cell.solve(&p, self.u, &mut self.guess);
-        self.history[0] = self.history[1];
-        self.history[1] = (s, self.guess);
+        if s == self.history[2].0 {
+            self.history[2].1 = self.guess;
+        } else {
+            self.history = [self.history[1], self.history[2], (s, self.guess)];
+        }
         sol
     }
 
@@ -409,7 +433,11 @@ fn integrate_once(
         flux: FARADAY * cell.gap_d * streams.u_d,
         delta_c_mean: cell.sh_c.hydraulic_diameter_m / cell.sh_c.mean(length),
         guess: Guess::default(),
-        history: [(-2.0, Guess::default()), (-1.0, Guess::default())],
+        history: [
+            (-3.0, Guess::default()),
+            (-2.0, Guess::default()),
+            (-1.0, Guess::default()),
+        ],
         evaluations: 0,
     };
     let mut profiles = want_profiles.then(Profiles::default);
@@ -462,7 +490,11 @@ fn integrate_once(
     let (mut max_v_cem, mut max_v_aem, mut max_ws) = (0.0f64, 0.0f64, 0.0f64);
     let mut end_s = 1.0;
     let mut done = false;
+    // Warm-start history at the last accepted point: a discarded trial step restores it, so
+    // the retry does not extrapolate from points beyond where it starts.
+    let mut history_acc = (rhs.history, rhs.guess);
     while !done {
+        (rhs.history, rhs.guess) = history_acc;
         if steps > 20_000 {
             return Err(ModelError::Numerical(
                 "along-channel integration took more than 20000 steps".into(),
@@ -604,6 +636,7 @@ fn integrate_once(
         if let Some(p) = profiles.as_mut() {
             push_profile(p, length * s * s * s, y[0], rhs.c_c(y[0]), &sol_acc);
         }
+        history_acc = (rhs.history, rhs.guess);
         if s >= 1.0 {
             done = true;
         }
