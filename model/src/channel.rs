@@ -274,7 +274,11 @@ fn predict(h: &[(f64, Guess); 3], s: f64) -> Option<(f64, f64)> {
     let lo = s0.min(s1).min(s2);
     let hi = s0.max(s1).max(s2);
     let span = hi - lo;
-    if !(span > 0.0) || s < lo - MAX_EXTRAPOLATION * span || s > hi + MAX_EXTRAPOLATION * span {
+    if span.is_nan()
+        || span <= 0.0
+        || s < lo - MAX_EXTRAPOLATION * span
+        || s > hi + MAX_EXTRAPOLATION * span
+    {
         return None;
     }
     let l0 = (s - s1) * (s - s2) / ((s0 - s1) * (s0 - s2));
