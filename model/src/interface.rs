@@ -404,7 +404,7 @@ impl Layer {
             return (v, d);
         }
         let v_hi = self.v_c + ((i - self.i_onset) / slope).powf(1.0 / self.n) * 1.000_001 + 1e-9;
-        let (v, _) = newton_bracketed(
+        let (v, _, _) = newton_bracketed(
             |v| {
                 let (iv, d) = self.current(v);
                 (iv - i, d)
@@ -413,6 +413,7 @@ impl Layer {
             v_hi,
             guess,
             1e-11 * (1.0 + v_hi),
+            0.0,
         );
         let (_, d) = self.current(v);
         (v, d)

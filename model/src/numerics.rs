@@ -65,15 +65,18 @@ pub fn cbrt_pos(x: f64) -> f64 {
 /// builds the bracket from the physics). Each Newton step that leaves the current bracket, or
 /// does not halve the residual, is replaced by bisection, so convergence is guaranteed and
 /// at least linear; near the root it is quadratic. Stops when the step is below `x_tol`, or
-/// when two shrinking Newton steps in a row bound the remaining error below `x_tol`. Returns
-/// the root and the number of function calls.
+/// when the error left after the last Newton step, (f'' / 2 f') step^2 with f'' measured from
+/// the derivatives at the last two iterates (or `curvature`, a caller's estimate of
+/// |f'' / 2 f'|, before there are two; 0 = none), is below `x_tol / 4`. Returns the root, the
+/// number of function calls and the last measured |f'' / 2 f'| (0 when none was measured).
 pub fn newton_bracketed(
     mut f: impl FnMut(f64) -> (f64, f64),
     mut lo: f64,
     mut hi: f64,
     x0: f64,
     x_tol: f64,
-) -> (f64, u32) {
+    curvature: f64,
+) -> (f64, u32, f64) {
     let mut x = if x0 > lo && x0 < hi {
         x0
     } else {
@@ -81,13 +84,14 @@ pub fn newton_bracketed(
     };
     let mut calls = 0;
     let mut last_abs = f64::INFINITY;
-    let mut prev_newton = false;
-    let mut prev_step = f64::INFINITY;
+    // Last Newton iterate and its derivative (for the measured curvature).
+    let mut prev: Option<(f64, f64)> = None;
+    let mut measured = 0.0;
     for _ in 0..200 {
         let (fx, dfx) = f(x);
         calls += 1;
         if fx == 0.0 {
-            return (x, calls);
+            return (x, calls, measured);
         }
         if fx < 0.0 {
             lo = x;
@@ -95,28 +99,32 @@ pub fn newton_bracketed(
             hi = x;
         }
         let newton = x - fx / dfx;
-        let good = dfx > 0.0 && newton > lo && newton < hi && fx.abs() < 0.5 * last_abs;
-        let next = if good || (last_abs.is_infinite() && dfx > 0.0 && newton > lo && newton < hi) {
-            newton
-        } else {
-            0.5 * (lo + hi)
-        };
+        let inside = dfx > 0.0 && newton > lo && newton < hi;
+        let good = inside && (fx.abs() < 0.5 * last_abs || last_abs.is_infinite());
+        let next = if good { newton } else { 0.5 * (lo + hi) };
         last_abs = fx.abs();
         let step = (next - x).abs();
-        x = next;
         if step <= x_tol || hi - lo <= x_tol {
-            return (x, calls);
+            return (next, calls, measured);
         }
-        // Two Newton steps in a row shrinking: the error left after this one is at most
-        // about step^2 / (prev - step) (the bound of a linear rate step / prev; a quadratic
-        // rate leaves less), so stop without the confirming call.
-        if good && prev_newton && step < prev_step && step * step <= x_tol * (prev_step - step) {
-            return (x, calls);
+        if good {
+            let k = match prev {
+                Some((xp, dfp)) if xp != x => {
+                    measured = ((dfx - dfp) / (x - xp)).abs() / (2.0 * dfx);
+                    measured
+                }
+                _ => curvature,
+            };
+            if k > 0.0 && k * step * step <= 0.25 * x_tol {
+                return (next, calls, measured);
+            }
+            prev = Some((x, dfx));
+        } else {
+            prev = None;
         }
-        prev_newton = good;
-        prev_step = step;
+        x = next;
     }
-    (x, calls)
+    (x, calls, measured)
 }
 
 /// Brent's method (Brent, Algorithms for Minimization without Derivatives, 1973, ch. 4) for a
@@ -224,7 +232,14 @@ mod tests {
 
     #[test]
     fn newton_bracketed_finds_cube_root() {
-        let (x, calls) = newton_bracketed(|x| (x * x * x - 2.0, 3.0 * x * x), 0.0, 2.0, 1.9, 1e-14);
+        let (x, calls, _) = newton_bracketed(
+            |x| (x * x * x - 2.0, 3.0 * x * x),
+            0.0,
+            2.0,
+            1.9,
+            1e-14,
+            0.0,
+        );
         assert!((x - 2f64.cbrt()).abs() < 1e-12);
         assert!(calls < 20);
     }
