@@ -394,7 +394,7 @@ fn read(p: &Path) -> Vec<u8> {
 #[test]
 fn killed_runs_resume_to_the_uninterrupted_result() {
     let dir = tempfile::tempdir().unwrap();
-    let study = small_study(dir.path(), "s.toml", 480);
+    let study = small_study(dir.path(), "s.toml", 2400);
     let whole = dir.path().join("whole");
     let t0 = std::time::Instant::now();
     run_to_end(&study, &whole, &["--threads", "2"]);
@@ -402,8 +402,11 @@ fn killed_runs_resume_to_the_uninterrupted_result() {
     // they fall mid-run on fast and slow machines alike.
     let whole_ms = (t0.elapsed().as_millis() as u64).max(20);
 
-    let spawn = |out: &Path| {
+    // Snapshot interval of each attempt: every generation, mixed snapshots and journal
+    // replay, and replay only (the default interval is longer than the run).
+    let spawn_every = |out: &Path, snapshot_seconds: &str| {
         Command::new(env!("CARGO_BIN_EXE_stria"))
+            .env("STRIA_SNAPSHOT_SECONDS", snapshot_seconds)
             .args([
                 "run",
                 study.to_str().unwrap(),
@@ -418,11 +421,13 @@ fn killed_runs_resume_to_the_uninterrupted_result() {
             .spawn()
             .unwrap()
     };
+    let spawn = |out: &Path| spawn_every(out, "30");
     let broken = dir.path().join("broken");
     let mut rng = ChaCha8Rng::seed_from_u64(20261202);
     let mut kills = 0;
-    for _ in 0..5 {
-        let mut child = spawn(&broken);
+    let mut replays = 0;
+    for every in ["30", "0", "0.005", "30", "0.002"] {
+        let mut child = spawn_every(&broken, every);
         std::thread::sleep(Duration::from_millis(
             rng.random_range(whole_ms / 10..whole_ms / 2 + 1),
         ));
@@ -430,10 +435,26 @@ fn killed_runs_resume_to_the_uninterrupted_result() {
             child.kill().unwrap(); // SIGKILL on Unix
             kills += 1;
         }
-        child.wait().unwrap();
+        let out = child.wait_with_output().unwrap();
+        replays += String::from_utf8_lossy(&out.stderr)
+            .matches("replayed")
+            .count();
     }
-    run_to_end(&study, &broken, &["--threads", "2"]);
+    let last = stria(&[
+        "run",
+        study.to_str().unwrap(),
+        "--out",
+        broken.to_str().unwrap(),
+        "--threads",
+        "2",
+    ]);
+    assert_eq!(last.status.code(), Some(0), "{}", stderr(&last));
+    replays += stderr(&last).matches("replayed").count();
     assert!(kills > 0, "no run was interrupted; the test proves nothing");
+    assert!(
+        replays > 0,
+        "no resume replayed journalled generations; the test misses the journal"
+    );
     for f in ["front.csv", "evaluations.csv"] {
         assert!(
             read(&whole.join(f)) == read(&broken.join(f)),
@@ -442,7 +463,7 @@ fn killed_runs_resume_to_the_uninterrupted_result() {
     }
     let summary: serde_json::Value =
         serde_json::from_slice(&read(&broken.join("summary.json"))).unwrap();
-    assert_eq!(summary["evaluations"], 480);
+    assert_eq!(summary["evaluations"], 2400);
     assert_eq!(summary["finished"], true);
 
     // Ctrl-C (SIGINT): a clean pause with everything written and the resume command printed.
@@ -626,4 +647,44 @@ fn a_second_run_in_the_same_directory_is_refused() {
     first.kill().unwrap();
     first.wait().unwrap();
     assert_bad(&o, "s.toml", None, "--out", "another `stria run`");
+}
+
+#[test]
+fn a_journal_that_does_not_match_the_checkpoint_is_refused() {
+    let dir = tempfile::tempdir().unwrap();
+    let study = small_study(dir.path(), "s.toml", 64);
+    let out = dir.path().join("run");
+    run_to_end(&study, &out, &[]);
+    let summary: serde_json::Value =
+        serde_json::from_slice(&read(&out.join("summary.json"))).unwrap();
+    let generations = summary["generations"].as_u64().unwrap();
+    let len = |f: &str| std::fs::metadata(out.join(f)).unwrap().len();
+    // A journal line for the next generation whose designs are not the ones the optimiser
+    // draws from the checkpoint (as if the journal belonged to another state).
+    let outcome = serde_json::json!({"x": [1e-4, 0.5, 0.05, 1.0], "objectives": [1.0, 2.0],
+        "constraints": [], "failure": null});
+    let record = serde_json::json!({
+        "generation": generations + 1,
+        "evaluations": 64 + 16,
+        "evaluations_csv_bytes": len("evaluations.csv"),
+        "evaluations_csv_rows": 64,
+        "history_csv_bytes": len("history.csv"),
+        "elapsed_s": 1.0,
+        "outcomes": vec![outcome; 16],
+    });
+    std::fs::write(out.join("journal.jsonl"), format!("{record}\n")).unwrap();
+    let o = stria(&[
+        "run",
+        study.to_str().unwrap(),
+        "--out",
+        out.to_str().unwrap(),
+        "--max-evals",
+        "200",
+    ]);
+    assert_eq!(o.status.code(), Some(1), "{}", stderr(&o));
+    assert!(
+        stderr(&o).contains("does not match") && stderr(&o).contains("--fresh"),
+        "{}",
+        stderr(&o)
+    );
 }

@@ -11,8 +11,8 @@ use crate::study::{Objective, Study};
 /// Rows of evaluations.csv kept at most; later evaluations are counted but not written.
 pub const EVALUATIONS_CSV_CAP: u64 = 1_000_000;
 
-/// Version of checkpoint.json's layout.
-pub const CHECKPOINT_VERSION: u32 = 1;
+/// Version of checkpoint.json's layout (2: a snapshot plus journal.jsonl).
+pub const CHECKPOINT_VERSION: u32 = 2;
 
 /// Paths of a run directory.
 #[derive(Debug, Clone)]
@@ -52,6 +52,10 @@ impl RunDir {
     pub fn summary(&self) -> PathBuf {
         self.dir.join("summary.json")
     }
+    /// journal.jsonl: one line per generation committed since the last snapshot.
+    pub fn journal(&self) -> PathBuf {
+        self.dir.join("journal.jsonl")
+    }
     /// Every file `stria run` writes (what `--fresh` removes).
     pub fn all(&self) -> Vec<PathBuf> {
         vec![
@@ -61,6 +65,7 @@ impl RunDir {
             self.history(),
             self.summary(),
             self.study(),
+            self.journal(),
         ]
     }
 }
@@ -82,6 +87,73 @@ pub struct Checkpoint {
     pub elapsed_s: f64,
     /// The optimiser state (`optimizer::Run`).
     pub run: serde_json::Value,
+}
+
+/// One committed generation in journal.jsonl: what it evaluated (exactly, so a resume can
+/// replay the generation from the last snapshot without evaluating again) and the lengths of
+/// the appended files after it.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct JournalRecord {
+    /// Generation number after the step.
+    pub generation: u64,
+    /// Evaluations done after the step.
+    pub evaluations: u64,
+    /// Byte length of evaluations.csv after the step.
+    pub evaluations_csv_bytes: u64,
+    /// Data rows in evaluations.csv after the step.
+    pub evaluations_csv_rows: u64,
+    /// Byte length of history.csv after the step.
+    pub history_csv_bytes: u64,
+    /// Wall-clock seconds of all invocations after the step.
+    pub elapsed_s: f64,
+    /// The step's evaluations, in order.
+    pub outcomes: Vec<JournalOutcome>,
+}
+
+/// One evaluation as the optimiser received it.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct JournalOutcome {
+    /// Design variables (SI).
+    pub x: Vec<f64>,
+    /// Minimised objectives (empty when failed).
+    pub objectives: Vec<f64>,
+    /// Normalised constraints (empty when failed).
+    pub constraints: Vec<f64>,
+    /// Why the evaluation failed, if it did.
+    pub failure: Option<String>,
+}
+
+impl JournalOutcome {
+    /// The record of an evaluated design.
+    pub fn of(e: &Evaluated) -> JournalOutcome {
+        JournalOutcome {
+            x: e.x.clone(),
+            objectives: e.objectives.clone(),
+            constraints: e.constraints.clone(),
+            failure: e.failure.clone(),
+        }
+    }
+}
+
+/// The committed records of a journal's text, in order: every whole line (ending in a
+/// newline) that parses; a last line without its newline is a write cut short by a kill and
+/// is ignored. A damaged line followed by more lines is an error.
+pub fn parse_journal(text: &str) -> Result<Vec<JournalRecord>, String> {
+    let mut out = Vec::new();
+    let mut lines = text.split_inclusive('\n').peekable();
+    while let Some(line) = lines.next() {
+        if !line.ends_with('\n') {
+            break;
+        }
+        match serde_json::from_str::<JournalRecord>(line) {
+            Ok(r) => out.push(r),
+            Err(e) if lines.peek().is_some() => {
+                return Err(format!("line {} is damaged ({e})", out.len() + 1));
+            }
+            Err(_) => break,
+        }
+    }
+    Ok(out)
 }
 
 /// A number as written in every CSV: Rust's shortest round-trip form, so it is bit-stable.
@@ -235,3 +307,55 @@ pub fn front_csv(
 
 /// Header of history.csv.
 pub const HISTORY_HEADER: &str = "generation,evaluations,feasible_share,hypervolume,elapsed_s\n";
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn record(generation: u64) -> JournalRecord {
+        JournalRecord {
+            generation,
+            evaluations: 16 * generation,
+            evaluations_csv_bytes: 100 + generation,
+            evaluations_csv_rows: 16 * generation,
+            history_csv_bytes: 40 + generation,
+            elapsed_s: 0.1 * generation as f64,
+            outcomes: vec![
+                JournalOutcome {
+                    x: vec![1.0 / 3.0, 1e-300, 0.1 + 0.2],
+                    objectives: vec![-2.0f64.sqrt(), 7.0],
+                    constraints: vec![-0.25],
+                    failure: None,
+                },
+                JournalOutcome {
+                    x: vec![0.5, 2.0, 3.0],
+                    objectives: vec![],
+                    constraints: vec![],
+                    failure: Some("target \"unreachable\"\nat 1.5 m".into()),
+                },
+            ],
+        }
+    }
+
+    fn line(r: &JournalRecord) -> String {
+        format!("{}\n", serde_json::to_string(r).unwrap())
+    }
+
+    #[test]
+    fn journal_round_trips_bit_for_bit_and_ignores_a_torn_last_line() {
+        let (a, b) = (record(1), record(2));
+        let whole = line(&a) + &line(&b);
+        assert_eq!(parse_journal(&whole).unwrap(), vec![a.clone(), b.clone()]);
+        // Cut anywhere inside the second line: only the first record is committed.
+        for cut in line(&a).len()..whole.len() {
+            assert_eq!(parse_journal(&whole[..cut]).unwrap(), vec![a.clone()]);
+        }
+        assert!(parse_journal("").unwrap().is_empty());
+    }
+
+    #[test]
+    fn a_damaged_line_inside_the_journal_is_an_error() {
+        let text = line(&record(1)) + "{\"generation\": oops}\n" + &line(&record(3));
+        assert!(parse_journal(&text).is_err());
+    }
+}

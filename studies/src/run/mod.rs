@@ -1,10 +1,16 @@
 //! `stria run`: a study's optimisation with a resumable run directory.
 //!
 //! Each generation, in this order: evaluation rows appended (fsync), history row appended
-//! (fsync), front.csv and summary.json replaced atomically, then checkpoint.json replaced
-//! atomically. The checkpoint is the commit point: it records the byte lengths of the two
-//! appended files, so a run killed at any instant resumes from the last checkpoint, cuts the
-//! rows of the unfinished generation and repeats that generation exactly.
+//! (fsync), then one line appended to journal.jsonl (fsync): the generation's evaluations,
+//! exactly, and the byte lengths of the two CSV files after it. That line is the commit
+//! point. Every [`snapshot_every`] (and at the end) the whole optimiser state is written to
+//! checkpoint.json atomically and the journal is emptied; front.csv and summary.json are
+//! refreshed every few seconds. A run killed at any instant resumes from the snapshot,
+//! replays the journalled generations (the optimiser draws the same designs from the same
+//! state; their outcomes come from the journal, nothing is evaluated twice), cuts the rows of
+//! the unfinished generation and repeats that generation exactly. Rewriting the whole state
+//! every generation (the first layout) wrote gigabytes over a long run on a real disk; the
+//! journal writes about as much per generation as evaluations.csv does.
 
 pub mod files;
 pub mod problem;
@@ -20,8 +26,11 @@ use optimizer::{Run, StepReport, StopReason};
 use crate::error::{io_error, CliError};
 use crate::fsio::{append_synced, truncate_synced, write_atomic};
 use crate::study::{read_fingerprint, Study};
-use files::{Checkpoint, RunDir, CHECKPOINT_VERSION, EVALUATIONS_CSV_CAP, HISTORY_HEADER};
-use problem::{run_config, StudyProblem};
+use files::{
+    parse_journal, Checkpoint, JournalOutcome, JournalRecord, RunDir, CHECKPOINT_VERSION,
+    EVALUATIONS_CSV_CAP, HISTORY_HEADER,
+};
+use problem::{run_config, Replay, StudyProblem};
 
 /// Options of `stria run`.
 #[derive(Debug, Clone, Default)]
@@ -60,10 +69,23 @@ struct State {
     cap_noted: bool,
     csv_cap: u64,
     derived_written: Option<Instant>,
+    last_snapshot: Instant,
+    /// Journalled generations after the snapshot, to replay on resume.
+    pending: Vec<JournalRecord>,
 }
 
 /// Longest time front.csv and summary.json lag behind the checkpoint during a run.
 const DERIVED_EVERY: Duration = Duration::from_secs(5);
+
+/// How often the whole optimiser state is written (30 s; the environment variable
+/// `STRIA_SNAPSHOT_SECONDS` overrides it, for tests of the replay).
+fn snapshot_every() -> Duration {
+    std::env::var("STRIA_SNAPSHOT_SECONDS")
+        .ok()
+        .and_then(|v| v.parse::<f64>().ok())
+        .filter(|v| v.is_finite() && *v >= 0.0)
+        .map_or(Duration::from_secs(30), Duration::from_secs_f64)
+}
 
 fn cmd_err(field: &str, message: impl Into<String>, allowed: &str) -> CliError {
     CliError::input("command line", None, field, message, allowed)
@@ -222,6 +244,34 @@ pub fn run(opts: &RunOptions) -> Result<Ended, CliError> {
         "evaluations.csv keeps at most {} rows; later evaluations count in the summary only",
         state.csv_cap
     );
+    if !state.pending.is_empty() {
+        let pending = std::mem::take(&mut state.pending);
+        let replay = Replay::new(&problem, &pending);
+        pool.install(|| -> Result<(), CliError> {
+            for rec in &pending {
+                state.run.step(&replay);
+                if state.run.generation() != rec.generation
+                    || state.run.evaluations() != rec.evaluations
+                    || replay.misses() > 0
+                {
+                    return Err(CliError::Runtime(format!(
+                        "{} does not match the snapshot in {} (generation {}); start afresh with --fresh",
+                        rd.journal().display(),
+                        rd.checkpoint().display(),
+                        rec.generation
+                    )));
+                }
+            }
+            Ok(())
+        })?;
+        let elapsed = state.elapsed_before_s;
+        write_snapshot(&rd, &mut state, elapsed, &fingerprint)?;
+        eprintln!(
+            "replayed {} generation(s) from {} (their outcomes were recorded; nothing evaluated twice)",
+            pending.len(),
+            rd.journal().display()
+        );
+    }
     if state.run.evaluations() > 0 {
         eprintln!(
             "resuming at generation {} ({} evaluations done)",
@@ -268,6 +318,7 @@ pub fn run(opts: &RunOptions) -> Result<Ended, CliError> {
     let stop_reason = match ended {
         Ended::Finished(r) | Ended::Paused(r) => r,
     };
+    write_snapshot(&rd, &mut state, elapsed, &fingerprint)?;
     write_front(&rd, &study, &state, &mut front_cache)?;
     write_summary(
         &rd,
@@ -321,6 +372,7 @@ fn start(
         .map_err(|e| io_error("write", &rd.evaluations(), e))?;
     write_atomic(&rd.history(), HISTORY_HEADER.as_bytes())
         .map_err(|e| io_error("write", &rd.history(), e))?;
+    write_atomic(&rd.journal(), b"").map_err(|e| io_error("write", &rd.journal(), e))?;
     let mut state = State {
         run,
         eval_bytes: header.len() as u64,
@@ -330,6 +382,8 @@ fn start(
         cap_noted: false,
         csv_cap,
         derived_written: None,
+        last_snapshot: Instant::now(),
+        pending: Vec::new(),
     };
     write_atomic(&rd.study(), study.to_resolved_toml().as_bytes())
         .map_err(|e| io_error("write", &rd.study(), e))?;
@@ -383,9 +437,51 @@ fn resume(rd: &RunDir, study: &Study, fingerprint: &str, csv_cap: u64) -> Result
             path.display()
         ))
     })?;
+    // The generations committed to the journal after the snapshot (a journal not yet emptied
+    // after a snapshot still holds older ones: skipped).
+    let journal = rd.journal();
+    let text = match std::fs::read_to_string(&journal) {
+        Ok(t) => t,
+        Err(e) if e.kind() == std::io::ErrorKind::NotFound => String::new(),
+        Err(e) => return Err(io_error("read", &journal, e)),
+    };
+    let damaged = |why: String| {
+        CliError::Runtime(format!(
+            "{} is damaged ({why}); start afresh with --fresh",
+            journal.display()
+        ))
+    };
+    let pending: Vec<JournalRecord> = parse_journal(&text)
+        .map_err(damaged)?
+        .into_iter()
+        .filter(|r| r.generation > run.generation())
+        .collect();
+    for (k, r) in pending.iter().enumerate() {
+        if r.generation != run.generation() + 1 + k as u64 {
+            return Err(damaged(format!(
+                "generation {} follows the snapshot's {} out of order",
+                r.generation,
+                run.generation()
+            )));
+        }
+    }
+    let (eval_bytes, eval_rows, history_bytes, elapsed_s) = match pending.last() {
+        Some(r) => (
+            r.evaluations_csv_bytes,
+            r.evaluations_csv_rows,
+            r.history_csv_bytes,
+            r.elapsed_s,
+        ),
+        None => (
+            cp.evaluations_csv_bytes,
+            cp.evaluations_csv_rows,
+            cp.history_csv_bytes,
+            cp.elapsed_s,
+        ),
+    };
     for (file, len) in [
-        (rd.evaluations(), cp.evaluations_csv_bytes),
-        (rd.history(), cp.history_csv_bytes),
+        (rd.evaluations(), eval_bytes),
+        (rd.history(), history_bytes),
     ] {
         let now = file_len(&file)?;
         if now < len {
@@ -398,13 +494,15 @@ fn resume(rd: &RunDir, study: &Study, fingerprint: &str, csv_cap: u64) -> Result
     }
     Ok(State {
         run,
-        eval_bytes: cp.evaluations_csv_bytes,
-        eval_rows: cp.evaluations_csv_rows,
-        history_bytes: cp.history_csv_bytes,
-        elapsed_before_s: cp.elapsed_s,
-        cap_noted: cp.evaluations_csv_rows >= csv_cap,
+        eval_bytes,
+        eval_rows,
+        history_bytes,
+        elapsed_before_s: elapsed_s,
+        cap_noted: eval_rows >= csv_cap,
         csv_cap,
         derived_written: None,
+        last_snapshot: Instant::now(),
+        pending,
     })
 }
 
@@ -450,6 +548,20 @@ fn commit(
     append_synced(&rd.history(), line.as_bytes())
         .map_err(|e| io_error("append to", &rd.history(), e))?;
     state.history_bytes += line.len() as u64;
+    let record = JournalRecord {
+        generation: state.run.generation(),
+        evaluations: state.run.evaluations(),
+        evaluations_csv_bytes: state.eval_bytes,
+        evaluations_csv_rows: state.eval_rows,
+        history_csv_bytes: state.history_bytes,
+        elapsed_s: elapsed,
+        outcomes: report.new.iter().map(JournalOutcome::of).collect(),
+    };
+    let mut entry =
+        serde_json::to_string(&record).map_err(|e| CliError::Runtime(format!("journal: {e}")))?;
+    entry.push('\n');
+    append_synced(&rd.journal(), entry.as_bytes())
+        .map_err(|e| io_error("append to", &rd.journal(), e))?;
     // front.csv and summary.json follow from the checkpoint (a resume rewrites them), so on
     // fast generations they are refreshed every few seconds rather than every generation.
     if !matches!(state.derived_written, Some(t) if t.elapsed() < DERIVED_EVERY) {
@@ -457,7 +569,24 @@ fn commit(
         write_summary(rd, study, state, elapsed, fingerprint, stop_reason, false)?;
         state.derived_written = Some(Instant::now());
     }
-    write_checkpoint(rd, state, elapsed, fingerprint)
+    if state.last_snapshot.elapsed() >= snapshot_every() {
+        write_snapshot(rd, state, elapsed, fingerprint)?;
+    }
+    Ok(())
+}
+
+/// The whole state to checkpoint.json (atomically), then the journal emptied. A kill between
+/// the two leaves journal lines the snapshot already holds; a resume skips them.
+fn write_snapshot(
+    rd: &RunDir,
+    state: &mut State,
+    elapsed: f64,
+    fingerprint: &str,
+) -> Result<(), CliError> {
+    write_checkpoint(rd, state, elapsed, fingerprint)?;
+    write_atomic(&rd.journal(), b"").map_err(|e| io_error("write", &rd.journal(), e))?;
+    state.last_snapshot = Instant::now();
+    Ok(())
 }
 
 fn write_front(

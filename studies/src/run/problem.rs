@@ -1,9 +1,14 @@
 //! The study as an optimisation problem, and the optimiser configuration it asks for.
 
+use std::collections::HashMap;
+use std::sync::atomic::{AtomicU64, Ordering};
+
 use optimizer::{
     Algorithm, InitialDesign, Nsga2Config, Outcome, Problem, RunConfig, Scalarisation,
     ScalarisedConfig, ScreeningConfig, Solver, Variable,
 };
+
+use super::files::JournalRecord;
 
 use crate::study::{AlgorithmChoice, Study};
 
@@ -45,6 +50,69 @@ impl Problem for StudyProblem<'_> {
             objectives,
             constraints,
         })
+    }
+}
+
+/// A study problem that answers from the journal: the outcomes recorded for the generations
+/// after the last snapshot, keyed by the exact bits of the design variables, so a resume
+/// replays those generations (the optimiser draws the same designs from the same state)
+/// without evaluating again. A design not in the journal is evaluated and counted as a miss.
+pub struct Replay<'a> {
+    inner: &'a StudyProblem<'a>,
+    recorded: HashMap<Vec<u64>, Result<Outcome, String>>,
+    misses: AtomicU64,
+}
+
+impl<'a> Replay<'a> {
+    /// The replay of `records` over `inner`.
+    pub fn new(inner: &'a StudyProblem<'a>, records: &[JournalRecord]) -> Replay<'a> {
+        let mut recorded = HashMap::new();
+        for o in records.iter().flat_map(|r| &r.outcomes) {
+            let key = o.x.iter().map(|v| v.to_bits()).collect();
+            let result = match &o.failure {
+                Some(reason) => Err(reason.clone()),
+                None => Ok(Outcome {
+                    objectives: o.objectives.clone(),
+                    constraints: o.constraints.clone(),
+                }),
+            };
+            recorded.insert(key, result);
+        }
+        Replay {
+            inner,
+            recorded,
+            misses: AtomicU64::new(0),
+        }
+    }
+
+    /// Designs that were not in the journal (0 when the replay matched it).
+    pub fn misses(&self) -> u64 {
+        self.misses.load(Ordering::SeqCst)
+    }
+}
+
+impl Problem for Replay<'_> {
+    fn variables(&self) -> Vec<Variable> {
+        self.inner.variables()
+    }
+
+    fn num_objectives(&self) -> usize {
+        self.inner.num_objectives()
+    }
+
+    fn num_constraints(&self) -> usize {
+        self.inner.num_constraints()
+    }
+
+    fn evaluate(&self, x: &[f64]) -> Result<Outcome, String> {
+        let key: Vec<u64> = x.iter().map(|v| v.to_bits()).collect();
+        match self.recorded.get(&key) {
+            Some(r) => r.clone(),
+            None => {
+                self.misses.fetch_add(1, Ordering::SeqCst);
+                self.inner.evaluate(x)
+            }
+        }
     }
 }
 
