@@ -208,11 +208,13 @@ impl Study {
     }
 
     /// Fingerprint of everything that shapes the results (every resolved key except the
-    /// budget keys, which may be raised on resume): FNV-1a 64-bit of the resolved lines, hex.
+    /// budget keys, which may be raised on resume) and the model revision
+    /// ([`model::MODEL_REVISION`]): FNV-1a 64-bit of those lines, hex.
     pub fn fingerprint(&self) -> String {
         let body = self.resolved_body();
         let mut h: u64 = 0xcbf2_9ce4_8422_2325;
-        for line in body.lines() {
+        let revision = format!("model_revision = {}", model::MODEL_REVISION);
+        for line in std::iter::once(revision.as_str()).chain(body.lines()) {
             if line.starts_with('#') || line.trim().is_empty() {
                 continue;
             }
