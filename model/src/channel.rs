@@ -411,6 +411,7 @@ fn push_profile(p: &mut Profiles, x: f64, c_d: f64, c_c: f64, sol: &PointSolutio
     p.limiting_current_density_A_m2.push(sol.limiting);
     p.active_area_fraction.push(sol.alpha);
     p.cem_layer_voltage_thermal.push(sol.v_cem);
+    p.aem_layer_voltage_thermal.push(sol.v_aem);
 }
 
 /// Integrate one channel at cell-pair voltage `u` with the concentrate at x = 0 given.

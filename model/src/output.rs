@@ -168,6 +168,8 @@ pub struct Profiles {
     pub active_area_fraction: Vec<f64>,
     /// Local CEM diffusion-layer voltage in thermal units, -.
     pub cem_layer_voltage_thermal: Vec<f64>,
+    /// Local AEM diffusion-layer voltage in thermal units, -.
+    pub aem_layer_voltage_thermal: Vec<f64>,
 }
 
 /// How the along-channel integration went.

@@ -362,14 +362,21 @@ pub fn design_sheet(study: &Study, e: &Evaluation) -> String {
         s.push_str("\nProfiles along the channel\n");
         let _ = writeln!(
             s,
-            "  {:>9} {:>11} {:>11} {:>10} {:>10} {:>8} {:>9}",
-            "x mm", "diluate mM", "conc. mM", "i A/m2", "i_lim A/m2", "active", "V_cem/V_T"
+            "  {:>9} {:>11} {:>11} {:>10} {:>10} {:>8} {:>9} {:>9}",
+            "x mm",
+            "diluate mM",
+            "conc. mM",
+            "i A/m2",
+            "i_lim A/m2",
+            "active",
+            "V_cem/V_T",
+            "V_aem/V_T"
         );
         for k in 0..pr.x_m.len() {
             let at = |v: &Vec<f64>| v.get(k).copied().unwrap_or(f64::NAN);
             let _ = writeln!(
                 s,
-                "  {:>9} {:>11} {:>11} {:>10} {:>10} {:>8} {:>9}",
+                "  {:>9} {:>11} {:>11} {:>10} {:>10} {:>8} {:>9} {:>9}",
                 sig(at(&pr.x_m) * 1e3, 4),
                 sig(at(&pr.diluate_mol_m3), 4),
                 sig(at(&pr.concentrate_mol_m3), 4),
@@ -377,6 +384,7 @@ pub fn design_sheet(study: &Study, e: &Evaluation) -> String {
                 sig(at(&pr.limiting_current_density_A_m2), 4),
                 sig(at(&pr.active_area_fraction), 3),
                 sig(at(&pr.cem_layer_voltage_thermal), 3),
+                sig(at(&pr.aem_layer_voltage_thermal), 3),
             );
         }
     }

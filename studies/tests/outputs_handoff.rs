@@ -235,7 +235,11 @@ fn check_case(c: &Value, unpatterned: bool) {
         open_fraction: f,
         membrane_transport_number: num(c, "electrolyte.membrane_transport_number"),
         spacer: model::Spacer::None,
-        membrane: model::interface::MembraneKind::Cem,
+        membrane: if c["membrane"] == "AEM" {
+            model::interface::MembraneKind::Aem
+        } else {
+            model::interface::MembraneKind::Cem
+        },
     };
     let k = studies::study::Study::load(&fixture::demo("quick.toml"))
         .unwrap()
@@ -353,6 +357,7 @@ fn the_coupling_constant_of_aqueous_nacl_at_25_c_is_about_one_half() {
         bulk_concentration_mol_m3: 10.0,
         salt_diffusivity_m2_s: p.salt_diffusivity_m2_s,
         cation_transport_number: p.cation_transport_number,
+        membrane: model::interface::MembraneKind::Cem,
         membrane_transport_number: 0.97,
         relative_permittivity: p.relative_permittivity,
         density_kg_m3: p.density_kg_m3,
@@ -416,4 +421,104 @@ fn the_binary_exits_2_with_one_clear_message_for_an_unknown_id() {
         "{err}"
     );
     assert!(!dir.path().join("handoff").exists());
+}
+
+/// Peers limit F D c / ((tm - t) delta) from the card's own numbers (Peers, Discuss. Faraday
+/// Soc. 21 (1956); references.md), with t the counter-ion's transport number in solution.
+fn peers_from_card(c: &Value) -> f64 {
+    let t_plus = num(c, "electrolyte.cation_transport_number");
+    let t = if c["membrane"] == "AEM" {
+        1.0 - t_plus
+    } else {
+        t_plus
+    };
+    F * num(c, "electrolyte.salt_diffusivity_m2_s")
+        * num(c, "electrolyte.bulk_concentration_mol_m3")
+        / ((num(c, "electrolyte.membrane_transport_number") - t)
+            * num(c, "operating_point.boundary_layer_thickness_m"))
+}
+
+#[test]
+fn an_aem_pattern_gets_cards_of_the_anion_exchange_interface() {
+    let dir = tempfile::tempdir().unwrap();
+    let ids = fixture::write_run_with(
+        dir.path(),
+        &["salt_removal_rate", "specific_energy"],
+        &[("pattern_side = \"cem\"", "pattern_side = \"aem\"")],
+    );
+    let out = dir.path().join("cards");
+    handoff::run(dir.path(), &[ids[0]], Some(&out)).unwrap();
+    let read = |name: &str| -> Value {
+        serde_json::from_str(&std::fs::read_to_string(out.join(name).join("case.json")).unwrap())
+            .unwrap()
+    };
+    let p = read(&format!("design_{}", ids[0]));
+    let b = read(&format!("design_{}_unpatterned", ids[0]));
+    for (c, unpatterned) in [(&p, false), (&b, true)] {
+        check_case(c, unpatterned);
+        assert_eq!(c["membrane"], "AEM");
+        assert!(c["description"]
+            .as_str()
+            .unwrap()
+            .contains("anion-exchange membrane"));
+        let bc = c["boundary_conditions"].as_array().unwrap();
+        let stripes = bc
+            .iter()
+            .find(|x| x["boundary"] == "conducting stripes")
+            .unwrap();
+        assert!(stripes["ions"]
+            .as_str()
+            .unwrap()
+            .starts_with("ideal anion-selective surface"));
+        // anions leave the diluate towards the anode: the AEM sits above the opposite wall
+        assert!(stripes["potential"]
+            .as_str()
+            .unwrap()
+            .starts_with("phi = +V"));
+        let opposite = bc
+            .iter()
+            .find(|x| x["boundary"] == "opposite wall")
+            .unwrap();
+        assert!(opposite["ions"]
+            .as_str()
+            .unwrap()
+            .contains("cation-exchange wall"));
+        // the AEM's transport number from the study, and its Peers limit (t- = 1 - t+)
+        close(
+            num(c, "electrolyte.membrane_transport_number"),
+            0.96,
+            1e-12,
+            "AEM transport number of the quick demo",
+        );
+        close(
+            num(c, "operating_point.limiting_current_density_A_m2"),
+            peers_from_card(c),
+            1e-9,
+            "Peers limit at the AEM",
+        );
+    }
+
+    // The CEM cards of the same designs keep the cation-exchange wording and the CEM's limit,
+    // which for NaCl is lower than the AEM's at the same layer (t+ < t-).
+    let cem_dir = dir.path().join("cem");
+    std::fs::create_dir_all(&cem_dir).unwrap();
+    let cem_ids = fixture::write_run(&cem_dir, &["salt_removal_rate", "specific_energy"]);
+    let cem_out = cem_dir.join("cards");
+    handoff::run(&cem_dir, &[cem_ids[0]], Some(&cem_out)).unwrap();
+    let q: Value = serde_json::from_str(
+        &std::fs::read_to_string(
+            cem_out
+                .join(format!("design_{}", cem_ids[0]))
+                .join("case.json"),
+        )
+        .unwrap(),
+    )
+    .unwrap();
+    assert_eq!(q["membrane"], "CEM");
+    close(
+        num(&q, "operating_point.limiting_current_density_A_m2"),
+        peers_from_card(&q),
+        1e-9,
+        "Peers limit at the CEM",
+    );
 }

@@ -6,7 +6,7 @@
 //! | column | required | meaning |
 //! |---|---|---|
 //! | `curve` | yes | a label; rows with the same label form one current-voltage curve |
-//! | `layer_voltage_V` | yes | diffusion-layer voltage across one diluate-side CEM interface, V: the potential of the electroneutral bulk at the outer edge of the diffusion layer minus that of the membrane just inside its surface (the membrane's own ohmic drop excluded), as the hand-off case applies it |
+//! | `layer_voltage_V` | yes | diffusion-layer voltage across one diluate-side interface of the study's patterned membrane (the CEM; the AEM when the study patterns only the AEM), V: the potential of the electroneutral bulk at the outer edge of the diffusion layer minus that of the membrane just inside its surface (the membrane's own ohmic drop excluded), as the hand-off case applies it |
 //! | `current_density_A_m2` | yes | time- and window-averaged current density, A per m^2 of membrane (conducting and inert stripes together), >= 0 |
 //! | `concentration_mol_m3` | no | bulk salt concentration at the window, mol/m^3 |
 //! | `velocity_m_s` | no | mean channel velocity, m/s |

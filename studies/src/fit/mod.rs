@@ -45,6 +45,7 @@ pub struct Calibration {
 pub fn conditions(data: &DataSet, study: &Study) -> (Vec<InterfaceConditions>, Vec<String>) {
     let b = &study.baseline;
     let default_position = 0.5 * b.channel.length_m;
+    let (membrane, tm) = fitted_membrane(study);
     let conds = data
         .points
         .iter()
@@ -61,9 +62,9 @@ pub fn conditions(data: &DataSet, study: &Study) -> (Vec<InterfaceConditions>, V
                 position_m: c.position_m.unwrap_or(default_position),
                 pitch_m: c.pitch_m.unwrap_or(b.membranes.pitch_m),
                 open_fraction: c.open_fraction.unwrap_or(b.membranes.open_fraction),
-                membrane_transport_number: b.membranes.cem_transport_number,
+                membrane_transport_number: tm,
                 spacer: b.channel.spacer,
-                membrane: MembraneKind::Cem,
+                membrane,
             }
         })
         .collect();
@@ -100,12 +101,33 @@ pub fn conditions(data: &DataSet, study: &Study) -> (Vec<InterfaceConditions>, V
         })
         .collect();
     notes.push(format!(
-        "salt {}, CEM transport number {} and channel filling `{}` taken from the study",
+        "the data are taken as the {} interface (the study's patterned membrane); salt {}, {} \
+         transport number {} and channel filling `{}` taken from the study",
+        membrane_name(membrane),
         b.water.salt.name(),
-        b.membranes.cem_transport_number,
+        membrane_name(membrane),
+        tm,
         b.channel.spacer.name()
     ));
     (conds, notes)
+}
+
+/// The membrane whose interface the data describe, as in the hand-off cards: the CEM when the
+/// study patterns the CEM or both, the AEM when it patterns only the AEM; with its counter-ion
+/// transport number.
+pub fn fitted_membrane(study: &Study) -> (MembraneKind, f64) {
+    let m = &study.baseline.membranes;
+    match m.pattern_side {
+        model::PatternSide::Aem => (MembraneKind::Aem, m.aem_transport_number),
+        _ => (MembraneKind::Cem, m.cem_transport_number),
+    }
+}
+
+fn membrane_name(m: MembraneKind) -> &'static str {
+    match m {
+        MembraneKind::Cem => "CEM",
+        MembraneKind::Aem => "AEM",
+    }
 }
 
 /// Fit `keys` (empty: the default set) to the data with the study's constants as the start.

@@ -3,6 +3,7 @@
 //! groups, mesh estimate and the ROM's predictions, built from plain numbers so that every
 //! relation here can be checked on its own.
 
+use model::interface::MembraneKind;
 use serde::Serialize;
 
 /// Version of the `case.json` schema; raised whenever a field changes meaning or is removed.
@@ -61,7 +62,9 @@ pub struct CaseInputs {
     pub salt_diffusivity_m2_s: f64,
     /// Cation transport number in solution.
     pub cation_transport_number: f64,
-    /// CEM counter-ion transport number.
+    /// The patterned membrane whose interface the case simulates.
+    pub membrane: MembraneKind,
+    /// Counter-ion transport number of that membrane.
     pub membrane_transport_number: f64,
     /// Relative permittivity of water.
     pub relative_permittivity: f64,
@@ -69,7 +72,7 @@ pub struct CaseInputs {
     pub density_kg_m3: f64,
     /// Pa s.
     pub dynamic_viscosity_pa_s: f64,
-    /// Local CEM diffusion-layer voltage, thermal units.
+    /// Local diffusion-layer voltage at that membrane, thermal units.
     pub layer_voltage_thermal: f64,
     /// Local diffusion-layer thickness, m.
     pub boundary_layer_thickness_m: f64,
@@ -138,7 +141,7 @@ pub struct Electrolyte {
     pub salt_diffusivity_m2_s: f64,
     /// Cation transport number in solution.
     pub cation_transport_number: f64,
-    /// CEM counter-ion transport number (an ideal membrane would be 1).
+    /// Counter-ion transport number of the simulated membrane (an ideal membrane would be 1).
     pub membrane_transport_number: f64,
     /// Relative permittivity of water.
     pub relative_permittivity: f64,
@@ -265,6 +268,8 @@ pub struct CaseCard {
     pub design_id: u64,
     /// True: the unpatterned baseline at the design's operating point.
     pub unpatterned_baseline: bool,
+    /// The membrane at y = 0: "CEM" (cation-exchange) or "AEM" (anion-exchange).
+    pub membrane: &'static str,
     /// What the case is, in one sentence.
     pub description: String,
     /// Geometry.
@@ -377,16 +382,37 @@ pub fn build(inp: &CaseInputs) -> CaseCard {
 
     let layer_v = inp.layer_voltage_thermal * vt;
     let name = inp.name.clone();
+    // The simulated membrane's words: its kind, counter-ion and co-ion, the opposite wall,
+    // and the sign of its potential against that wall (cations leave the diluate towards the
+    // cathode through the CEM, anions towards the anode through the AEM).
+    let (kind, exchange, counter, co, other, sign) = match inp.membrane {
+        MembraneKind::Cem => (
+            "CEM",
+            "cation-exchange",
+            "cation",
+            "anion",
+            "anion-exchange",
+            -1.0,
+        ),
+        MembraneKind::Aem => (
+            "AEM",
+            "anion-exchange",
+            "anion",
+            "cation",
+            "cation-exchange",
+            1.0,
+        ),
+    };
     let description = if inp.unpatterned {
         format!(
             "Unpatterned baseline of design {}: the same channel, water and operating point with \
-             a homogeneous cation-exchange membrane, so the patterned case can be compared like \
+             a homogeneous {exchange} membrane, so the patterned case can be compared like \
              with like.",
             inp.design_id
         )
     } else {
         format!(
-            "Design {} of study {}: one diluate-side cation-exchange membrane interface with \
+            "Design {} of study {}: one diluate-side {exchange} membrane interface with \
              inert stripes, a window of {} pitches centred {:.4} m from the channel inlet.",
             inp.design_id, inp.study, n, inp.position_m
         )
@@ -418,15 +444,18 @@ pub fn build(inp: &CaseInputs) -> CaseCard {
             location: "y = 0 on the conducting_stripes_m intervals".into(),
             flow: "no slip".into(),
             ions: format!(
-                "ideal cation-selective surface: cation concentration fixed at the membrane's \
-                 counter-ion level (at least 2 c_b, e.g. 2 c_b = {} mol/m^3), zero anion flux; \
-                 the ROM uses a membrane transport number of {}",
+                "ideal {counter}-selective surface: {counter} concentration fixed at the \
+                 membrane's counter-ion level (at least 2 c_b, e.g. 2 c_b = {} mol/m^3), zero \
+                 {co} flux; the ROM uses a membrane transport number of {}",
                 2.0 * c,
                 inp.membrane_transport_number
             ),
             potential: format!(
-                "phi = -V = {} V (-{} thermal units) relative to the opposite wall",
-                -layer_v, inp.layer_voltage_thermal
+                "phi = {}V = {} V ({}{} thermal units) relative to the opposite wall",
+                if sign < 0.0 { "-" } else { "+" },
+                sign * layer_v,
+                if sign < 0.0 { "-" } else { "+" },
+                inp.layer_voltage_thermal
             ),
         },
         Boundary {
@@ -441,8 +470,8 @@ pub fn build(inp: &CaseInputs) -> CaseCard {
             location: "y = gap, 0 <= x <= window".into(),
             flow: "no slip".into(),
             ions: format!(
-                "a non-polarising anion-exchange wall standing in for the opposite membrane: \
-                 anion concentration fixed at c_b = {c} mol/m^3, zero cation flux"
+                "a non-polarising {other} wall standing in for the opposite membrane: \
+                 {co} concentration fixed at c_b = {c} mol/m^3, zero {counter} flux"
             ),
             potential: "phi = 0 (reference)".into(),
         },
@@ -458,6 +487,7 @@ pub fn build(inp: &CaseInputs) -> CaseCard {
         study: inp.study.clone(),
         design_id: inp.design_id,
         unpatterned_baseline: inp.unpatterned,
+        membrane: kind,
         description,
         geometry: Geometry {
             coordinates: "x along the flow from the window's upstream edge, y from the patterned \
@@ -570,7 +600,7 @@ pub fn build(inp: &CaseInputs) -> CaseCard {
                 unit: "-",
                 definition: format!(
                     "share of the window's membrane length (both stripe kinds) where the \
-                     time-averaged anion concentration at height y = {PROBE_HEIGHT_OF_DELTA} \
+                     time-averaged {co} concentration at height y = {PROBE_HEIGHT_OF_DELTA} \
                      delta = {:.3e} m exceeds {ACTIVE_THRESHOLD} of the bulk concentration",
                     PROBE_HEIGHT_OF_DELTA * delta
                 ),

@@ -72,7 +72,22 @@ pub fn case_inputs(
     let length = eval.inputs.length_m;
     let position = 0.5 * length;
     let c_b = interpolate(&profiles.x_m, &profiles.diluate_mol_m3, position);
-    let v = interpolate(&profiles.x_m, &profiles.cem_layer_voltage_thermal, position);
+    // The card describes the patterned membrane's interface: the CEM when the pattern is on
+    // the CEM or on both (for NaCl and KCl the CEM reaches its limit first), the AEM when only
+    // the AEM carries it. The unpatterned twin keeps the same membrane, like with like.
+    let (membrane, layer_profile, membrane_tm) = match design.membranes.pattern_side {
+        model::PatternSide::Aem => (
+            MembraneKind::Aem,
+            &profiles.aem_layer_voltage_thermal,
+            design.membranes.aem_transport_number,
+        ),
+        _ => (
+            MembraneKind::Cem,
+            &profiles.cem_layer_voltage_thermal,
+            design.membranes.cem_transport_number,
+        ),
+    };
+    let v = interpolate(&profiles.x_m, layer_profile, position);
     let t = design.water.temperature_k;
     let props = model::properties::properties(design.water.salt, t, c_b);
     let conditions = InterfaceConditions {
@@ -84,9 +99,9 @@ pub fn case_inputs(
         position_m: position,
         pitch_m: design.membranes.pitch_m,
         open_fraction: design.membranes.open_fraction,
-        membrane_transport_number: design.membranes.cem_transport_number,
+        membrane_transport_number: membrane_tm,
         spacer: design.channel.spacer,
-        membrane: MembraneKind::Cem,
+        membrane,
     };
     let state = interface::solve(&conditions, v, constants);
     let pitches = pitches.unwrap_or_else(|| {
@@ -119,7 +134,8 @@ pub fn case_inputs(
         bulk_concentration_mol_m3: c_b,
         salt_diffusivity_m2_s: props.salt_diffusivity_m2_s,
         cation_transport_number: props.cation_transport_number,
-        membrane_transport_number: design.membranes.cem_transport_number,
+        membrane,
+        membrane_transport_number: membrane_tm,
         relative_permittivity: props.relative_permittivity,
         density_kg_m3: props.density_kg_m3,
         dynamic_viscosity_pa_s: props.dynamic_viscosity_pa_s,
@@ -167,8 +183,8 @@ pub fn readme(card: &CaseCard) -> String {
          WHAT THIS IS\n\
          {description}\n\
          Domain: 2-D, the channel gap ({gap:.4e} m) by a window of {n} stripe pitches \
-         ({window:.4e} m) starting {start:.4e} m from the channel inlet. The patterned \
-         cation-exchange membrane is the wall y = 0; stripe edges are in case.json \
+         ({window:.4e} m) starting {start:.4e} m from the channel inlet. The {membrane} \
+         ({exchange}) is the wall y = 0; stripe edges are in case.json \
          (geometry.conducting_stripes_m, geometry.inert_stripes_m, metres from the window start).\n\
          layout.svg draws the window to scale with the diffusion-layer thickness and the \
          predicted vortex size.\n\n\
@@ -231,24 +247,22 @@ pub fn readme(card: &CaseCard) -> String {
         of = g.open_fraction,
         pos = g.window_centre_from_inlet_m,
         caution = case::CAUTION,
+        membrane = if card.unpatterned_baseline {
+            format!("unpatterned {}", card.membrane)
+        } else {
+            format!("patterned {}", card.membrane)
+        },
+        exchange = if card.membrane == "AEM" {
+            "anion-exchange membrane"
+        } else {
+            "cation-exchange membrane"
+        },
     )
 }
 
 /// `stria handoff DIR --pick ID [--pick ID ...] [--out DIR2]`.
 pub fn run(dir: &Path, picks: &[u64], out: Option<&Path>) -> Result<(), CliError> {
     let run = rundir::read(dir)?;
-    if run.study.baseline.membranes.pattern_side == model::PatternSide::Aem {
-        // the cards describe the patterned CEM interface (the model's profiles carry the CEM
-        // layer voltage); an AEM-only pattern would need the AEM layer's state
-        return Err(CliError::input(
-            dir.join("study.toml"),
-            None,
-            "membranes.pattern_side",
-            "hand-off cards describe a patterned cation-exchange membrane interface; this study \
-             patterns the anion-exchange membrane only",
-            "pattern_side = \"cem\" or \"both\" for `stria handoff`",
-        ));
-    }
     if picks.is_empty() {
         return Err(CliError::input(
             "command line",

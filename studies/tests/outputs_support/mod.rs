@@ -29,7 +29,16 @@ pub const DIAGNOSTICS: [&str; 8] = [
 /// Write a run directory for the quick demo study with `objectives` (study keys) into `dir`;
 /// returns the ids on the front.
 pub fn write_run(dir: &Path, objectives: &[&str]) -> Vec<u64> {
-    let text = std::fs::read_to_string(demo("quick.toml")).unwrap();
+    write_run_with(dir, objectives, &[])
+}
+
+/// [`write_run`] with text replacements applied to the quick demo first (each must match).
+pub fn write_run_with(dir: &Path, objectives: &[&str], edits: &[(&str, &str)]) -> Vec<u64> {
+    let mut text = std::fs::read_to_string(demo("quick.toml")).unwrap();
+    for (from, to) in edits {
+        assert!(text.contains(from), "quick.toml has no `{from}`");
+        text = text.replacen(from, to, 1);
+    }
     let list = objectives
         .iter()
         .map(|o| format!("{o:?}"))
