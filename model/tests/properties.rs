@@ -2,12 +2,15 @@
 //! second law (energy never below the thermodynamic minimum) over random admissible designs.
 //! Every random number comes from a seeded generator.
 
+mod support;
+
 use model::cell::{Cell, Guess};
 use model::interface::Layer;
 use model::*;
 use proptest::prelude::*;
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
+use support::{random_design, Spread};
 
 fn constants_strategy() -> impl Strategy<Value = RomConstants> {
     (
@@ -128,48 +131,15 @@ proptest! {
     }
 }
 
-/// A random admissible design (every draw from the seeded generator).
-fn random_design(rng: &mut ChaCha8Rng) -> Design {
-    let mut d = Design::demo();
-    let feed = 10f64.powf(rng.random_range(0.5..2.5));
-    d.water.salt = [Salt::NaCl, Salt::KCl][rng.random_range(0..2)];
-    d.water.temperature_k = rng.random_range(278.15..323.15);
-    d.water.feed_concentration_mol_m3 = feed;
-    d.water.concentrate_feed_concentration_mol_m3 = feed * rng.random_range(0.5..4.0);
-    d.channel.gap_m = rng.random_range(0.2e-3..2e-3);
-    d.channel.concentrate_gap_m = rng.random_range(0.2e-3..2e-3);
-    d.channel.length_m = rng.random_range(0.05..1.5);
-    d.channel.spacer = match rng.random_range(0..3) {
-        0 => Spacer::None,
-        1 => Spacer::Multiplier {
-            sherwood: rng.random_range(1.0..3.0),
-            friction: rng.random_range(1.0..5.0),
-            shadow_factor: rng.random_range(1.0..1.5),
+/// A random admissible design with every channel filling and membrane property varied.
+fn any_design(rng: &mut ChaCha8Rng) -> Design {
+    random_design(
+        rng,
+        Spread {
+            spacers_and_membranes: true,
+            ..Spread::default()
         },
-        _ => Spacer::SchockMiquel {
-            porosity: rng.random_range(0.7..0.95),
-            shadow_factor: rng.random_range(1.0..1.5),
-        },
-    };
-    d.membranes.cem_transport_number = rng.random_range(0.85..1.0);
-    d.membranes.aem_transport_number = rng.random_range(0.85..1.0);
-    d.membranes.cem_area_resistance_ohm_m2 = rng.random_range(1e-4..1e-3);
-    d.membranes.aem_area_resistance_ohm_m2 = rng.random_range(1e-4..1e-3);
-    d.membranes.pitch_m = 10f64.powf(rng.random_range(-5.0..-3.0));
-    d.membranes.open_fraction = rng.random_range(0.1..1.0);
-    d.membranes.pattern_side =
-        [PatternSide::Cem, PatternSide::Aem, PatternSide::Both][rng.random_range(0..3)];
-    d.operation.velocity_m_s = rng.random_range(0.005..0.2);
-    d.operation.concentrate_velocity_m_s = rng.random_range(0.005..0.2);
-    d.operation.drive = Drive::Voltage {
-        cell_pair_voltage_v: rng.random_range(0.02..4.0),
-    };
-    d.operation.flow = if rng.random_range(0..10) == 0 {
-        FlowArrangement::CounterCurrent
-    } else {
-        FlowArrangement::CoCurrent
-    };
-    d
+    )
 }
 
 /// model.md section 6: energy used never falls below the thermodynamic minimum for the same
@@ -184,7 +154,7 @@ fn energy_never_below_thermodynamic_minimum() {
         profiles: false,
     };
     for n in 0..10_000 {
-        let d = random_design(&mut rng);
+        let d = any_design(&mut rng);
         let e = evaluate(&d, &k, &o).unwrap_or_else(|err| panic!("design {n}: {err}: {d:?}"));
         let p = &e.performance;
         if d.water.concentrate_feed_concentration_mol_m3 >= d.water.feed_concentration_mol_m3 {
@@ -220,7 +190,7 @@ fn current_drive_and_target_mode_over_random_designs() {
     };
     let (mut found, mut unreachable) = (0, 0);
     for n in 0..300 {
-        let d = random_design(&mut rng);
+        let d = any_design(&mut rng);
         let base = evaluate(&d, &k, &o).unwrap();
         if base.performance.cell_current_A > 1e-3 {
             let mut g = d;
