@@ -24,7 +24,7 @@
 use crate::constants::RomConstants;
 use crate::design::{Salt, Spacer};
 use crate::hydraulics::channel_flow;
-use crate::numerics::newton_bracketed;
+use crate::numerics::{erf, erfc, newton_bracketed};
 use crate::properties::properties;
 use crate::transfer::{peers_limit, SherwoodModel};
 
@@ -87,7 +87,7 @@ struct ErfAt {
 
 impl ErfAt {
     fn new(a: f64) -> Self {
-        let tail = libm::erfc(a.abs());
+        let tail = erfc(a.abs());
         // erf(a) is only needed for a < 0, where it equals erfc(-a) - 1.
         ErfAt {
             a,
@@ -100,11 +100,11 @@ impl ErfAt {
     #[inline]
     fn diff_to(&self, b: f64) -> f64 {
         if self.a >= 0.0 {
-            self.tail - libm::erfc(b)
+            self.tail - erfc(b)
         } else if b <= 0.0 {
-            libm::erfc(-b) - self.tail
+            erfc(-b) - self.tail
         } else {
-            libm::erf(b) - self.erf
+            erf(b) - self.erf
         }
     }
 }
