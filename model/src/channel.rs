@@ -129,9 +129,12 @@ const RELATIVE_FLOOR: f64 = 1e-13;
 /// proportional to c, as on the plateau and in the ohmic range, a relative error made early
 /// keeps its size to the outlet), and a design that empties its diluate by many orders of
 /// magnitude needs hundreds of steps of a few thousandths. With this rule the tolerances of all
-/// steps sum to at most 2 / H_REF full-tolerance steps, whatever their number, while the usual
-/// steps of a few hundredths to a tenth are controlled as before.
-const H_REF: f64 = 0.05;
+/// steps sum to at most 2 / H_REF full-tolerance steps, whatever their number, while steps of a
+/// tenth and longer are controlled as before. 0.1 rather than the first 0.05: over 2,100
+/// random designs (seven seeds of `--example tolsweep`, one in four of high removal) the
+/// worst outlet error fell from 9.85e-7 to 5.4e-7, for 2 % more point solves on ordinary
+/// designs and 12 % more on deep-removal ones.
+const H_REF: f64 = 0.1;
 
 /// Largest change (thermal units) of a layer voltage on its classic branch (below the
 /// electroconvective onset) over one step, at rel_tol = 1e-7; it scales as rel_tol^(1/5), the
