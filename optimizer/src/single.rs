@@ -278,7 +278,13 @@ fn nelder_mead<F: Fn(&[f64]) -> f64>(a: &Adapter<'_, F>, x0: &[f64]) {
     // simplex is a known failure mode of Nelder-Mead (McKinnon, SIAM J. Optim. 9 (1998) 148).
     for _ in 0..12 {
         let left = a.budget.saturating_sub(a.used());
-        if left == 0 {
+        if left <= start.len() as u64 {
+            // Too few evaluations left for a simplex: argmin's Nelder-Mead evaluates every
+            // vertex when it starts and cannot stop for the budget there (it would panic).
+            // Spend one on the start point if nothing has been evaluated yet.
+            if left > 0 && a.best().is_none() {
+                let _ = a.cost(&start);
+            }
             break;
         }
         let simplex = initial_simplex(&start, size);
@@ -364,4 +370,39 @@ fn annealing<F: Fn(&[f64]) -> f64>(a: &Adapter<'_, F>, x0: &[f64], rng: &mut Cha
         .configure(|s| s.param(x0.to_vec()).max_iters(left))
         .timer(false)
         .run();
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn no_solver_overruns_or_panics_on_a_small_budget() {
+        // Every budget from 1 to 60 on a 4-variable problem. argmin's Nelder-Mead needs five
+        // evaluations to start; a restart late in the budget used to start with fewer and
+        // panic inside argmin.
+        let bounds = vec![(-2.0, 2.0); 4];
+        for solver in [
+            Solver::NelderMead,
+            Solver::ParticleSwarm,
+            Solver::SimulatedAnnealing,
+        ] {
+            for budget in 1..=60u64 {
+                let m = minimize(
+                    |x: &[f64]| x.iter().map(|v| (v - 0.3) * (v - 0.3)).sum(),
+                    &bounds,
+                    solver,
+                    budget,
+                    11,
+                )
+                .unwrap();
+                assert!(
+                    m.evaluations >= 1 && m.evaluations <= budget,
+                    "{solver:?} budget {budget}: {} evaluations",
+                    m.evaluations
+                );
+                assert!(m.f.is_finite());
+            }
+        }
+    }
 }
