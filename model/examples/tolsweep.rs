@@ -3,7 +3,8 @@
 //! and at 0.5 V, and random designs from a seeded generator (release mode; guides the choice of
 //! the default tolerance). Environment: STRIA_SWEEP_N (designs, 300), STRIA_SWEEP_SEED (4242),
 //! STRIA_SWEEP_LIST (list the designs off by more than 1e-6 at the first tolerance),
-//! STRIA_SWEEP_PLAIN (no high-removal designs).
+//! STRIA_SWEEP_PLAIN (no high-removal designs), STRIA_SWEEP_ONLY=J (only design J: its error at
+//! the default tolerance).
 #[path = "../tests/support/mod.rs"]
 mod support;
 
@@ -64,7 +65,7 @@ fn main() {
             )
         })
         .collect();
-    if let Ok(j) = std::env::var("ZZ_ONLY") {
+    if let Ok(j) = std::env::var("STRIA_SWEEP_ONLY") {
         let d = &designs[j.parse::<usize>().unwrap()];
         let r = run(d, 1e-11).performance.outlet_concentration_mol_m3;
         eprintln!("=== main");

@@ -282,7 +282,7 @@ struct Rhs<'a> {
     /// Counter-current concentrate uses the channel-mean layer thickness.
     delta_c_mean: f64,
     guess: Guess,
-    /// The last two points (s, solution) for the warm start.
+    /// The last three points of distinct s (s, solution) for the warm start.
     history: [(f64, Guess); 3],
     evaluations: u32,
 }
