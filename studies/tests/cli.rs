@@ -712,3 +712,32 @@ fn a_journal_that_does_not_match_the_checkpoint_is_refused() {
         stderr(&o)
     );
 }
+
+#[test]
+fn a_run_made_with_another_model_revision_is_not_resumed() {
+    let dir = tempfile::tempdir().unwrap();
+    let study = small_study(dir.path(), "s.toml", 32);
+    let out = dir.path().join("run");
+    run_to_end(&study, &out, &[]);
+    let resolved = std::fs::read_to_string(out.join("study.toml")).unwrap();
+    assert!(resolved.contains("\n# model revision: "), "{resolved}");
+    // As an older stria would have left it: another revision, hence another fingerprint.
+    let mut lines: Vec<String> = resolved.lines().map(str::to_string).collect();
+    lines[0] = "# fingerprint: 0123456789abcdef".into();
+    lines[1] = "# model revision: 1".into();
+    std::fs::write(out.join("study.toml"), lines.join("\n") + "\n").unwrap();
+    let o = stria(&[
+        "run",
+        study.to_str().unwrap(),
+        "--out",
+        out.to_str().unwrap(),
+        "--max-evals",
+        "64",
+    ]);
+    assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
+    let err = stderr(&o);
+    assert!(
+        err.contains("model revision 1") && err.contains("--fresh"),
+        "{err}"
+    );
+}

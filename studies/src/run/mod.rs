@@ -25,7 +25,7 @@ use optimizer::{Run, StepReport, StopReason};
 
 use crate::error::{io_error, CliError};
 use crate::fsio::{append_synced, truncate_synced, write_atomic};
-use crate::study::{read_fingerprint, Study};
+use crate::study::{read_fingerprint, read_model_revision, Study};
 use files::{
     parse_journal, Checkpoint, JournalOutcome, JournalRecord, RunDir, CHECKPOINT_VERSION,
     EVALUATIONS_CSV_CAP, HISTORY_HEADER,
@@ -200,6 +200,21 @@ pub fn run(opts: &RunOptions) -> Result<Ended, CliError> {
         let text =
             std::fs::read_to_string(rd.study()).map_err(|e| io_error("read", &rd.study(), e))?;
         let old = read_fingerprint(&text).unwrap_or_default();
+        let old_revision = read_model_revision(&text);
+        if old != fingerprint && old_revision != Some(model::MODEL_REVISION) {
+            let made_with = old_revision.map_or("an earlier".to_string(), |r| r.to_string());
+            return Err(CliError::input(
+                &opts.study,
+                None,
+                "(study)",
+                format!(
+                    "{} holds a run made with model revision {made_with}; this stria computes with revision {}, whose numbers differ, so the run cannot be resumed without mixing the two",
+                    dir.display(),
+                    model::MODEL_REVISION
+                ),
+                "--fresh to start the study again with this model, another --out directory, or the stria that made the run",
+            ));
+        }
         if old != fingerprint {
             return Err(CliError::input(
                 &opts.study,

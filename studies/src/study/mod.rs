@@ -237,8 +237,9 @@ impl Study {
     /// value (defaults explicit). Loading it gives the same study and fingerprint.
     pub fn to_resolved_toml(&self) -> String {
         format!(
-            "# fingerprint: {}\n# Resolved study: every default made explicit (written by stria).\n\n{}",
+            "# fingerprint: {}\n# model revision: {}\n# Resolved study: every default made explicit (written by stria).\n\n{}",
             self.fingerprint(),
+            model::MODEL_REVISION,
             self.resolved_body()
         )
     }
@@ -266,6 +267,15 @@ impl Study {
             commented: None,
         });
     }
+}
+
+/// Read the line `# model revision: N` of a resolved study file (None for files written before
+/// it was recorded).
+pub fn read_model_revision(text: &str) -> Option<u32> {
+    text.lines()
+        .take(5)
+        .find_map(|l| l.strip_prefix("# model revision:"))
+        .and_then(|v| v.trim().parse().ok())
 }
 
 /// Read the first line `# fingerprint: <hex>` of a resolved study file.
