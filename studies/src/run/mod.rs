@@ -260,32 +260,20 @@ pub fn run(opts: &RunOptions) -> Result<Ended, CliError> {
         state.csv_cap
     );
     if !state.pending.is_empty() {
-        let pending = std::mem::take(&mut state.pending);
-        let replay = Replay::new(&problem, &pending);
-        pool.install(|| -> Result<(), CliError> {
-            for rec in &pending {
-                state.run.step(&replay);
-                if state.run.generation() != rec.generation
-                    || state.run.evaluations() != rec.evaluations
-                    || replay.misses() > 0
-                {
-                    return Err(CliError::Runtime(format!(
-                        "{} does not match the snapshot in {} (generation {}); start afresh with --fresh",
-                        rd.journal().display(),
-                        rd.checkpoint().display(),
-                        rec.generation
-                    )));
-                }
-            }
-            Ok(())
-        })?;
+        let total = state.pending.len();
+        let replayed = pool.install(|| replay_journal(&rd, &mut state, &problem))?;
         let elapsed = state.elapsed_before_s;
         write_snapshot(&rd, &mut state, elapsed, &fingerprint)?;
         eprintln!(
-            "replayed {} generation(s) from {} (their outcomes were recorded; nothing evaluated twice)",
-            pending.len(),
+            "replayed {replayed} generation(s) from {} (their outcomes were recorded; nothing evaluated twice)",
             rd.journal().display()
         );
+        if replayed < total {
+            eprintln!(
+                "the journal's last {} generation(s) do not follow from this run's settings (a lowered budget?): they are computed again",
+                total - replayed
+            );
+        }
     }
     if state.run.evaluations() > 0 {
         eprintln!(
@@ -480,45 +468,78 @@ fn resume(rd: &RunDir, study: &Study, fingerprint: &str, csv_cap: u64) -> Result
             )));
         }
     }
-    let (eval_bytes, eval_rows, history_bytes, elapsed_s) = match pending.last() {
-        Some(r) => (
-            r.evaluations_csv_bytes,
-            r.evaluations_csv_rows,
-            r.history_csv_bytes,
-            r.elapsed_s,
-        ),
-        None => (
-            cp.evaluations_csv_bytes,
-            cp.evaluations_csv_rows,
-            cp.history_csv_bytes,
-            cp.elapsed_s,
-        ),
+    let state = State {
+        run,
+        eval_bytes: cp.evaluations_csv_bytes,
+        eval_rows: cp.evaluations_csv_rows,
+        history_bytes: cp.history_csv_bytes,
+        elapsed_before_s: cp.elapsed_s,
+        cap_noted: cp.evaluations_csv_rows >= csv_cap,
+        csv_cap,
+        derived_written: None,
+        last_snapshot: Instant::now(),
+        pending,
     };
+    if state.pending.is_empty() {
+        cut_to_commit(rd, &state)?;
+    }
+    Ok(state)
+}
+
+/// Cut the appended files to the lengths of the last commit in `state` (the rows of an
+/// unfinished generation go); a file shorter than that is damage.
+fn cut_to_commit(rd: &RunDir, state: &State) -> Result<(), CliError> {
     for (file, len) in [
-        (rd.evaluations(), eval_bytes),
-        (rd.history(), history_bytes),
+        (rd.evaluations(), state.eval_bytes),
+        (rd.history(), state.history_bytes),
     ] {
         let now = file_len(&file)?;
         if now < len {
             return Err(CliError::Runtime(format!(
-                "{} is shorter ({now} bytes) than at the checkpoint ({len} bytes); start afresh with --fresh",
+                "{} is shorter ({now} bytes) than at the last commit ({len} bytes); start afresh with --fresh",
                 file.display()
             )));
         }
         truncate_synced(&file, len).map_err(|e| io_error("truncate", &file, e))?;
     }
-    Ok(State {
-        run,
-        eval_bytes,
-        eval_rows,
-        history_bytes,
-        elapsed_before_s: elapsed_s,
-        cap_noted: eval_rows >= csv_cap,
-        csv_cap,
-        derived_written: None,
-        last_snapshot: Instant::now(),
-        pending,
-    })
+    Ok(())
+}
+
+/// Replay the journalled generations after the checkpoint: step the optimiser with outcomes
+/// looked up in the journal. A step that does not reproduce its record (the same generation,
+/// evaluations and designs) is undone and the replay ends there: the budget keys may change
+/// on resume, and a lowered budget changes the last steps; those generations are computed
+/// again. Then the CSVs are cut to the last replayed commit. Returns the generations replayed.
+fn replay_journal(
+    rd: &RunDir,
+    state: &mut State,
+    problem: &StudyProblem,
+) -> Result<usize, CliError> {
+    let pending = std::mem::take(&mut state.pending);
+    let replay = Replay::new(problem, &pending);
+    let mut replayed = 0;
+    for rec in &pending {
+        if state.run.finished().is_some() {
+            break;
+        }
+        let before = state.run.clone();
+        state.run.step(&replay);
+        if state.run.generation() != rec.generation
+            || state.run.evaluations() != rec.evaluations
+            || replay.misses() > 0
+        {
+            state.run = before;
+            break;
+        }
+        state.eval_bytes = rec.evaluations_csv_bytes;
+        state.eval_rows = rec.evaluations_csv_rows;
+        state.history_bytes = rec.history_csv_bytes;
+        state.elapsed_before_s = rec.elapsed_s;
+        state.cap_noted = rec.evaluations_csv_rows >= state.csv_cap;
+        replayed += 1;
+    }
+    cut_to_commit(rd, state)?;
+    Ok(replayed)
 }
 
 #[allow(clippy::too_many_arguments)]
