@@ -148,6 +148,23 @@ fn two_objectives_are_coloured_by_the_active_area_fraction() {
 }
 
 #[test]
+fn an_unfinished_run_is_reported_as_such() {
+    let dir = tempfile::tempdir().unwrap();
+    fixture::write_run(dir.path(), &["salt_removal_rate", "specific_energy"]);
+    let finished = report::build(&report::rundir::read(dir.path()).unwrap()).unwrap();
+    assert!(!finished.html.contains("has not finished"));
+    let path = dir.path().join("summary.json");
+    let text = std::fs::read_to_string(&path)
+        .unwrap()
+        .replace("\"finished\":true", "\"finished\":false");
+    assert!(text.contains("\"finished\":false"), "{text}");
+    std::fs::write(&path, text).unwrap();
+    let paused = report::build(&report::rundir::read(dir.path()).unwrap()).unwrap();
+    assert!(paused.html.contains("This run has not finished"));
+    assert!(paused.html.contains("to resume it"));
+}
+
+#[test]
 fn a_directory_that_is_not_a_run_is_a_clear_input_error() {
     let dir = tempfile::tempdir().unwrap();
     let e = report::run(dir.path()).unwrap_err();

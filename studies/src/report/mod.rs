@@ -388,6 +388,27 @@ fn design_figures(
     Ok(figs)
 }
 
+/// What to say of a run that has not finished (summary.json's `finished` is not true): its
+/// front is the one of the last refresh, and a resume brings it up to date.
+pub fn unfinished_note(run: &RunDir) -> Option<String> {
+    if run.summary.get("finished").and_then(|v| v.as_bool()) == Some(true) {
+        return None;
+    }
+    let at = match (
+        run.summary.get("generations").and_then(|v| v.as_u64()),
+        run.summary.get("evaluations").and_then(|v| v.as_u64()),
+    ) {
+        (Some(g), Some(e)) => format!(" (its summary shows generation {g}, {e} evaluations)"),
+        _ => String::new(),
+    };
+    Some(format!(
+        "This run has not finished{at}: it was paused, stopped or is still running, and the \
+         front shown is the one of its last refresh (a run killed mid-way may have gone further). \
+         Run `stria run` again with the same study and --out to resume it; that brings \
+         front.csv and this report up to date."
+    ))
+}
+
 /// Build the report of a run (figures and page) without writing anything.
 pub fn build(run: &RunDir) -> Result<Report, CliError> {
     let base_design = rundir::unpatterned(&run.study.baseline);
@@ -399,6 +420,9 @@ pub fn build(run: &RunDir) -> Result<Report, CliError> {
         ));
     }
     let base_eval = base_eval.ok();
+    if let Some(n) = unfinished_note(run) {
+        notes.push(n);
+    }
     let mut chosen = Vec::new();
     for (id, why) in best_few(run) {
         let row = run.front.row(id).expect("best_few picks rows of the front");
@@ -472,5 +496,8 @@ pub fn run(dir: &Path) -> Result<(), CliError> {
         t0.elapsed().as_secs_f64()
     );
     println!("Open it in any browser; it needs no network. Next: `stria handoff {} --pick ID` for the designs to simulate.", dir.display());
+    if let Some(n) = unfinished_note(&run) {
+        eprintln!("note: {n}");
+    }
     Ok(())
 }
