@@ -334,13 +334,12 @@ impl Cell {
             let df = 1.0 + di * (inv_r_vt + 1.0 / dis + 2.0 * (p.inv_cc / a + p.inv_ca / b));
             (f, df)
         };
-        let (v, _, _) = newton_bracketed(
+        let (v, _) = newton_bracketed(
             |v| residual(v, &mut last),
             0.0,
             drive,
             guess.0,
             1e-10 * (1.0 + drive),
-            0.0,
         );
         let dv = v - last.0;
         if dv != 0.0 {

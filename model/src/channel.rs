@@ -737,49 +737,29 @@ pub fn integrate(
     stats: &mut Stats,
 ) -> Result<ChannelResult, ModelError> {
     let ratio = cell.gap_d * streams.u_d / (cell.gap_c * streams.u_c);
-    if !streams.counter {
-        return integrate_once(
-            cell,
-            streams,
-            length,
-            u,
-            streams.c_c_in,
-            end,
-            rel_tol,
-            want_profiles,
-            stats,
-        );
-    }
-    if let End::Target(target) = end {
-        // The diluate outlet is the target, so the concentrate outlet is known.
-        let c_c0 = streams.c_c_in + ratio * (streams.c_d_in - target);
-        return integrate_once(
-            cell,
-            streams,
-            length,
-            u,
-            c_c0,
-            end,
-            rel_tol,
-            want_profiles,
-            stats,
-        );
-    }
-    // Counter-current, fixed length: find the diluate outlet c such that integrating with
-    // the concentrate outlet c_c,in + r (c_in - c) returns c.
-    let mut g = |c_out: f64| -> Result<f64, ModelError> {
-        let c_c0 = streams.c_c_in + ratio * (streams.c_d_in - c_out);
-        let r = integrate_once(cell, streams, length, u, c_c0, end, rel_tol, false, stats)?;
-        Ok(r.c_d_out - c_out)
+    // The concentrate concentration at x = 0: its inlet for co-current flow; for
+    // counter-current flow its outlet, known from the target in target mode, otherwise found
+    // by shooting: the diluate outlet c such that integrating with the concentrate outlet
+    // c_c,in + r (c_in - c) returns c.
+    let c_c0 = if !streams.counter {
+        streams.c_c_in
+    } else if let End::Target(target) = end {
+        streams.c_c_in + ratio * (streams.c_d_in - target)
+    } else {
+        let mut g = |c_out: f64| -> Result<f64, ModelError> {
+            let c_c0 = streams.c_c_in + ratio * (streams.c_d_in - c_out);
+            let r = integrate_once(cell, streams, length, u, c_c0, end, rel_tol, false, stats)?;
+            Ok(r.c_d_out - c_out)
+        };
+        let hi = streams.c_d_in;
+        let lo = 0.0;
+        let g_hi = g(hi)?;
+        let g_lo = g(lo)?;
+        let tol = 1e-3 * rel_tol * streams.c_d_in;
+        let root = brent(&mut g, lo, hi, g_lo, g_hi, tol, 100)?
+            .ok_or_else(|| ModelError::Numerical("counter-current outlet not bracketed".into()))?;
+        streams.c_c_in + ratio * (streams.c_d_in - root)
     };
-    let hi = streams.c_d_in;
-    let lo = 0.0;
-    let g_hi = g(hi)?;
-    let g_lo = g(lo)?;
-    let tol = 1e-3 * rel_tol * streams.c_d_in;
-    let root = brent(&mut g, lo, hi, g_lo, g_hi, tol, 100)?
-        .ok_or_else(|| ModelError::Numerical("counter-current outlet not bracketed".into()))?;
-    let c_c0 = streams.c_c_in + ratio * (streams.c_d_in - root);
     integrate_once(
         cell,
         streams,

@@ -37,6 +37,24 @@ pub enum MembraneKind {
     Aem,
 }
 
+impl MembraneKind {
+    /// The usual abbreviation, "CEM" or "AEM".
+    pub fn name(self) -> &'static str {
+        match self {
+            MembraneKind::Cem => "CEM",
+            MembraneKind::Aem => "AEM",
+        }
+    }
+
+    /// "cation-exchange" or "anion-exchange".
+    pub fn exchange(self) -> &'static str {
+        match self {
+            MembraneKind::Cem => "cation-exchange",
+            MembraneKind::Aem => "anion-exchange",
+        }
+    }
+}
+
 /// Funnelling factor Phi = i_lim,het / i_lim of a striped surface.
 ///
 /// Phi = f + (1 - f) / (1 + (pitch / (s_F delta))^k_F). Limits (Rubinstein, Staude and Kedem,
@@ -404,7 +422,7 @@ impl Layer {
             return (v, d);
         }
         let v_hi = self.v_c + ((i - self.i_onset) / slope).powf(1.0 / self.n) * 1.000_001 + 1e-9;
-        let (v, _, _) = newton_bracketed(
+        let (v, _) = newton_bracketed(
             |v| {
                 let (iv, d) = self.current(v);
                 (iv - i, d)
@@ -413,7 +431,6 @@ impl Layer {
             v_hi,
             guess,
             1e-11 * (1.0 + v_hi),
-            0.0,
         );
         let (_, d) = self.current(v);
         (v, d)
