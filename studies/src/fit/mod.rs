@@ -103,31 +103,19 @@ pub fn conditions(data: &DataSet, study: &Study) -> (Vec<InterfaceConditions>, V
     notes.push(format!(
         "the data are taken as the {} interface (the study's patterned membrane); salt {}, {} \
          transport number {} and channel filling `{}` taken from the study",
-        membrane_name(membrane),
+        membrane.name(),
         b.water.salt.name(),
-        membrane_name(membrane),
+        membrane.name(),
         tm,
         b.channel.spacer.name()
     ));
     (conds, notes)
 }
 
-/// The membrane whose interface the data describe, as in the hand-off cards: the CEM when the
-/// study patterns the CEM or both, the AEM when it patterns only the AEM; with its counter-ion
-/// transport number.
+/// The membrane whose interface the data describe, as in the hand-off cards
+/// ([`crate::handoff::case::simulated_membrane`]), with its counter-ion transport number.
 pub fn fitted_membrane(study: &Study) -> (MembraneKind, f64) {
-    let m = &study.baseline.membranes;
-    match m.pattern_side {
-        model::PatternSide::Aem => (MembraneKind::Aem, m.aem_transport_number),
-        _ => (MembraneKind::Cem, m.cem_transport_number),
-    }
-}
-
-fn membrane_name(m: MembraneKind) -> &'static str {
-    match m {
-        MembraneKind::Cem => "CEM",
-        MembraneKind::Aem => "AEM",
-    }
+    crate::handoff::case::simulated_membrane(&study.baseline.membranes)
 }
 
 /// Fit `keys` (empty: the default set) to the data with the study's constants as the start.

@@ -299,6 +299,17 @@ ED stacks run at hazardous voltages; electrode reactions make gases (hydrogen, c
 that need venting; operation above the limiting current shifts pH and can scale membranes. Defer \
 to local codes and licensed practice.";
 
+/// The membrane whose diluate-side interface a card (and a fit of the results) describes, and
+/// its counter-ion transport number: the patterned one, the CEM when the pattern is on the CEM
+/// or on both (for NaCl and KCl the CEM reaches its limit first), the AEM when only the AEM
+/// carries it. An unpatterned twin keeps the same membrane, like with like.
+pub fn simulated_membrane(m: &model::Membranes) -> (MembraneKind, f64) {
+    match m.pattern_side {
+        model::PatternSide::Aem => (MembraneKind::Aem, m.aem_transport_number),
+        _ => (MembraneKind::Cem, m.cem_transport_number),
+    }
+}
+
 /// Thermal voltage R T / F, V.
 pub fn thermal_voltage(temperature_k: f64) -> f64 {
     R * temperature_k / F
@@ -385,23 +396,10 @@ pub fn build(inp: &CaseInputs) -> CaseCard {
     // The simulated membrane's words: its kind, counter-ion and co-ion, the opposite wall,
     // and the sign of its potential against that wall (cations leave the diluate towards the
     // cathode through the CEM, anions towards the anode through the AEM).
-    let (kind, exchange, counter, co, other, sign) = match inp.membrane {
-        MembraneKind::Cem => (
-            "CEM",
-            "cation-exchange",
-            "cation",
-            "anion",
-            "anion-exchange",
-            -1.0,
-        ),
-        MembraneKind::Aem => (
-            "AEM",
-            "anion-exchange",
-            "anion",
-            "cation",
-            "cation-exchange",
-            1.0,
-        ),
+    let (kind, exchange) = (inp.membrane.name(), inp.membrane.exchange());
+    let (counter, co, other, sign) = match inp.membrane {
+        MembraneKind::Cem => ("cation", "anion", MembraneKind::Aem.exchange(), -1.0),
+        MembraneKind::Aem => ("anion", "cation", MembraneKind::Cem.exchange(), 1.0),
     };
     let description = if inp.unpatterned {
         format!(

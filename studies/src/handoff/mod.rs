@@ -72,20 +72,10 @@ pub fn case_inputs(
     let length = eval.inputs.length_m;
     let position = 0.5 * length;
     let c_b = interpolate(&profiles.x_m, &profiles.diluate_mol_m3, position);
-    // The card describes the patterned membrane's interface: the CEM when the pattern is on
-    // the CEM or on both (for NaCl and KCl the CEM reaches its limit first), the AEM when only
-    // the AEM carries it. The unpatterned twin keeps the same membrane, like with like.
-    let (membrane, layer_profile, membrane_tm) = match design.membranes.pattern_side {
-        model::PatternSide::Aem => (
-            MembraneKind::Aem,
-            &profiles.aem_layer_voltage_thermal,
-            design.membranes.aem_transport_number,
-        ),
-        _ => (
-            MembraneKind::Cem,
-            &profiles.cem_layer_voltage_thermal,
-            design.membranes.cem_transport_number,
-        ),
+    let (membrane, membrane_tm) = case::simulated_membrane(&design.membranes);
+    let layer_profile = match membrane {
+        MembraneKind::Cem => &profiles.cem_layer_voltage_thermal,
+        MembraneKind::Aem => &profiles.aem_layer_voltage_thermal,
     };
     let v = interpolate(&profiles.x_m, layer_profile, position);
     let t = design.water.temperature_k;
@@ -252,7 +242,7 @@ pub fn readme(card: &CaseCard) -> String {
         } else {
             format!("patterned {}", card.membrane)
         },
-        exchange = if card.membrane == "AEM" {
+        exchange = if card.membrane == MembraneKind::Aem.name() {
             "anion-exchange membrane"
         } else {
             "cation-exchange membrane"
