@@ -685,8 +685,9 @@ fn a_journal_that_does_not_follow_from_the_checkpoint_is_computed_again() {
     let len = |f: &str| std::fs::metadata(out.join(f)).unwrap().len();
     // A journal line for the next generation whose designs are not the ones the optimiser
     // draws from the checkpoint (as if the journal belonged to another state).
-    let outcome = serde_json::json!({"x": [1e-4, 0.5, 0.05, 1.0], "objectives": [1.0, 2.0],
-        "constraints": [], "failure": null});
+    let outcome = serde_json::json!({"id": 64, "generation": generations, "x": [1e-4, 0.5, 0.05, 1.0],
+        "objectives": [1.0, 2.0], "constraints": [-1.0, -1.0, -1.0], "violation": 0.0,
+        "failure": null});
     let record = serde_json::json!({
         "generation": generations + 1,
         "evaluations": 64 + 16,

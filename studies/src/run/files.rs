@@ -106,33 +106,8 @@ pub struct JournalRecord {
     pub history_csv_bytes: u64,
     /// Wall-clock seconds of all invocations after the step.
     pub elapsed_s: f64,
-    /// The step's evaluations, in order.
-    pub outcomes: Vec<JournalOutcome>,
-}
-
-/// One evaluation as the optimiser received it.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-pub struct JournalOutcome {
-    /// Design variables (SI).
-    pub x: Vec<f64>,
-    /// Minimised objectives (empty when failed).
-    pub objectives: Vec<f64>,
-    /// Normalised constraints (empty when failed).
-    pub constraints: Vec<f64>,
-    /// Why the evaluation failed, if it did.
-    pub failure: Option<String>,
-}
-
-impl JournalOutcome {
-    /// The record of an evaluated design.
-    pub fn of(e: &Evaluated) -> JournalOutcome {
-        JournalOutcome {
-            x: e.x.clone(),
-            objectives: e.objectives.clone(),
-            constraints: e.constraints.clone(),
-            failure: e.failure.clone(),
-        }
-    }
+    /// The step's evaluations, in order, as the optimiser recorded them.
+    pub outcomes: Vec<Evaluated>,
 }
 
 /// The committed records of a journal's text, in order: every whole line (ending in a
@@ -321,16 +296,22 @@ mod tests {
             history_csv_bytes: 40 + generation,
             elapsed_s: 0.1 * generation as f64,
             outcomes: vec![
-                JournalOutcome {
+                Evaluated {
+                    id: 3 * generation,
+                    generation,
                     x: vec![1.0 / 3.0, 1e-300, 0.1 + 0.2],
                     objectives: vec![-2.0f64.sqrt(), 7.0],
                     constraints: vec![-0.25],
+                    violation: 0.0,
                     failure: None,
                 },
-                JournalOutcome {
+                Evaluated {
+                    id: 3 * generation + 1,
+                    generation,
                     x: vec![0.5, 2.0, 3.0],
                     objectives: vec![],
                     constraints: vec![],
+                    violation: optimizer::problem::FAILED_VIOLATION,
                     failure: Some("target \"unreachable\"\nat 1.5 m".into()),
                 },
             ],

@@ -27,8 +27,8 @@ use crate::error::{io_error, CliError};
 use crate::fsio::{append_synced, truncate_synced, write_atomic};
 use crate::study::{read_fingerprint, read_model_revision, Study};
 use files::{
-    parse_journal, Checkpoint, JournalOutcome, JournalRecord, RunDir, CHECKPOINT_VERSION,
-    EVALUATIONS_CSV_CAP, HISTORY_HEADER,
+    parse_journal, Checkpoint, JournalRecord, RunDir, CHECKPOINT_VERSION, EVALUATIONS_CSV_CAP,
+    HISTORY_HEADER,
 };
 use problem::{run_config, Replay, StudyProblem};
 
@@ -70,6 +70,8 @@ struct State {
     csv_cap: u64,
     derived_written: Option<Instant>,
     last_snapshot: Instant,
+    /// How often the whole state is written ([`snapshot_every`], read once).
+    snapshot_every: Duration,
     /// Journalled generations after the snapshot, to replay on resume.
     pending: Vec<JournalRecord>,
 }
@@ -202,13 +204,15 @@ pub fn run(opts: &RunOptions) -> Result<Ended, CliError> {
         let old = read_fingerprint(&text).unwrap_or_default();
         let old_revision = read_model_revision(&text);
         if old != fingerprint && old_revision != Some(model::MODEL_REVISION) {
-            let made_with = old_revision.map_or("an earlier".to_string(), |r| r.to_string());
+            let made_with = old_revision.map_or("an earlier model revision".to_string(), |r| {
+                format!("model revision {r}")
+            });
             return Err(CliError::input(
                 &opts.study,
                 None,
                 "(study)",
                 format!(
-                    "{} holds a run made with model revision {made_with}; this stria computes with revision {}, whose numbers differ, so the run cannot be resumed without mixing the two",
+                    "{} holds a run made with {made_with}; this stria computes with revision {}, whose numbers differ, so the run cannot be resumed without mixing the two",
                     dir.display(),
                     model::MODEL_REVISION
                 ),
@@ -386,6 +390,7 @@ fn start(
         csv_cap,
         derived_written: None,
         last_snapshot: Instant::now(),
+        snapshot_every: snapshot_every(),
         pending: Vec::new(),
     };
     write_atomic(&rd.study(), study.to_resolved_toml().as_bytes())
@@ -478,6 +483,7 @@ fn resume(rd: &RunDir, study: &Study, fingerprint: &str, csv_cap: u64) -> Result
         csv_cap,
         derived_written: None,
         last_snapshot: Instant::now(),
+        snapshot_every: snapshot_every(),
         pending,
     };
     if state.pending.is_empty() {
@@ -591,7 +597,7 @@ fn commit(
         evaluations_csv_rows: state.eval_rows,
         history_csv_bytes: state.history_bytes,
         elapsed_s: elapsed,
-        outcomes: report.new.iter().map(JournalOutcome::of).collect(),
+        outcomes: report.new.clone(),
     };
     let mut entry =
         serde_json::to_string(&record).map_err(|e| CliError::Runtime(format!("journal: {e}")))?;
@@ -605,7 +611,7 @@ fn commit(
         write_summary(rd, study, state, elapsed, fingerprint, stop_reason, false)?;
         state.derived_written = Some(Instant::now());
     }
-    if state.last_snapshot.elapsed() >= snapshot_every() {
+    if state.last_snapshot.elapsed() >= state.snapshot_every {
         write_snapshot(rd, state, elapsed, fingerprint)?;
     }
     Ok(())

@@ -56,7 +56,8 @@ impl Problem for StudyProblem<'_> {
 /// A study problem that answers from the journal: the outcomes recorded for the generations
 /// after the last snapshot, keyed by the exact bits of the design variables, so a resume
 /// replays those generations (the optimiser draws the same designs from the same state)
-/// without evaluating again. A design not in the journal is evaluated and counted as a miss.
+/// without evaluating again. A design not in the journal is counted as a miss and not
+/// evaluated (the replay undoes a step with a miss).
 pub struct Replay<'a> {
     inner: &'a StudyProblem<'a>,
     recorded: HashMap<Vec<u64>, Result<Outcome, String>>,
@@ -110,7 +111,7 @@ impl Problem for Replay<'_> {
             Some(r) => r.clone(),
             None => {
                 self.misses.fetch_add(1, Ordering::SeqCst);
-                self.inner.evaluate(x)
+                Err("not in the journal".into())
             }
         }
     }
