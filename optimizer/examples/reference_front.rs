@@ -66,18 +66,7 @@ fn solve(problem: &dyn Problem, args: &Args) -> Result<Vec<Vec<f64>>, String> {
     run.run(problem, |_, _| {}, &AtomicBool::new(false), None);
     Ok(match args.front {
         FrontKind::Archive => run.archive().objectives(),
-        FrontKind::Population => {
-            let pts: Vec<Vec<f64>> = run
-                .population()
-                .iter()
-                .filter(|e| e.is_feasible())
-                .map(|e| e.objectives.clone())
-                .collect();
-            optimizer::dominance::non_dominated_indices(&pts)
-                .into_iter()
-                .map(|i| pts[i].clone())
-                .collect()
-        }
+        FrontKind::Population => run.population_front(),
     })
 }
 

@@ -571,6 +571,21 @@ impl Run {
         &self.population
     }
 
+    /// Objective vectors of the non-dominated feasible members of the population (what
+    /// NSGA-II implementations usually report as their result).
+    pub fn population_front(&self) -> Vec<Vec<f64>> {
+        let pts: Vec<Vec<f64>> = self
+            .population
+            .iter()
+            .filter(|e| e.is_feasible())
+            .map(|e| e.objectives.clone())
+            .collect();
+        crate::dominance::non_dominated_indices(&pts)
+            .into_iter()
+            .map(|i| pts[i].clone())
+            .collect()
+    }
+
     /// The configuration.
     pub fn config(&self) -> &RunConfig {
         &self.config

@@ -27,20 +27,6 @@ fn finish(config: RunConfig, problem: &dyn Problem) -> Run {
     run
 }
 
-/// Non-dominated feasible objective vectors of the final population.
-fn population_front(run: &Run) -> Vec<Vec<f64>> {
-    let pts: Vec<Vec<f64>> = run
-        .population()
-        .iter()
-        .filter(|e| e.is_feasible())
-        .map(|e| e.objectives.clone())
-        .collect();
-    optimizer::dominance::non_dominated_indices(&pts)
-        .into_iter()
-        .map(|i| pts[i].clone())
-        .collect()
-}
-
 /// (IGD, hypervolume ratio) of the final population after `evals` evaluations.
 fn quality(
     problem: &dyn Problem,
@@ -50,7 +36,7 @@ fn quality(
     evals: u64,
 ) -> (f64, f64) {
     let run = nsga2_run(problem, seed, evals);
-    let front = population_front(&run);
+    let front = run.population_front();
     let r = vec![1.1; problem.num_objectives()];
     let q = (igd(&front, reference), hypervolume(&front, &r) / hv_exact);
     println!("seed {seed}: IGD {:.5}, HV ratio {:.5}", q.0, q.1);
@@ -80,13 +66,13 @@ fn nsga2_zdt1_reaches_the_analytic_front() {
     let config = RunConfig::new(Algorithm::Nsga2(Nsga2Config::default()), 1, ZDT_EVALS);
     let lean = finish(config.lean(), &p);
     assert!(lean.archive().is_empty() && lean.hv_history().is_empty());
-    let front = population_front(&lean);
+    let front = lean.population_front();
     let d = igd(&front, &reference);
     let hv = hypervolume(&front, &[1.1, 1.1]) / 0.876667;
     println!("lean seed 1: IGD {d:.5}, HV ratio {hv:.5}");
     assert!(d < 0.012, "IGD {d}");
     assert!(hv > 0.98, "HV ratio {hv}");
-    assert_eq!(front, population_front(&nsga2_run(&p, 1, ZDT_EVALS)));
+    assert_eq!(front, nsga2_run(&p, 1, ZDT_EVALS).population_front());
 }
 
 #[test]
@@ -135,7 +121,7 @@ fn nsga2_dtlz2_reaches_the_unit_sphere() {
     let fresh = hypervolume(&run.archive().objectives(), run.hv_reference().unwrap());
     let last = *run.hv_history().last().unwrap();
     assert!((fresh - last).abs() <= 1e-12 * fresh, "{fresh} vs {last}");
-    for f in population_front(&run) {
+    for f in run.population_front() {
         let r = f.iter().map(|v| v * v).sum::<f64>().sqrt();
         assert!((r - 1.0).abs() < 0.05, "|f| = {r}");
     }
@@ -297,7 +283,7 @@ fn nsga2_tnk_front_lies_on_the_constraint_boundary() {
         .members()
         .iter()
         .all(|e| e.constraints.iter().all(|g| *g <= 0.0)));
-    let front = population_front(&run);
+    let front = run.population_front();
     assert!(front.len() >= 60, "{} points", front.len());
     let d = igd(&front, &Tnk::reference_front(5001));
     println!("TNK: IGD {d:.5}, {} points", front.len());
@@ -711,7 +697,8 @@ fn nsga2_dtlz2_with_four_objectives_converges() {
     // et al. 2002); the final front near it, and the hypervolume history finite and positive.
     let p = Dtlz2 { m: 4, n: 13 };
     let run = nsga2_run(&p, 2, 10_000);
-    let radii: Vec<f64> = population_front(&run)
+    let radii: Vec<f64> = run
+        .population_front()
         .iter()
         .map(|f| f.iter().map(|v| v * v).sum::<f64>().sqrt())
         .collect();
