@@ -1,6 +1,8 @@
 //! SVG figures through `plotters` (SVG backend only, no font features: text goes into the SVG
 //! as `<text>` elements and the viewer picks the font, so nothing needs system fonts).
 
+use plotters::coord::types::RangedCoordf64;
+use plotters::coord::Shift;
 use plotters::prelude::*;
 use plotters::style::HSLColor;
 
@@ -78,6 +80,35 @@ fn err<E: std::fmt::Debug>(e: E) -> String {
     format!("drawing failed: {e:?}")
 }
 
+/// The frame all charts share: caption, margins, and both axes with their descriptions and
+/// number labels.
+fn framed<'a, 'b>(
+    area: &'a DrawingArea<SVGBackend<'b>, Shift>,
+    title: &str,
+    xr: (f64, f64),
+    yr: (f64, f64),
+    x_label: &str,
+    y_label: &str,
+) -> Result<ChartContext<'a, SVGBackend<'b>, Cartesian2d<RangedCoordf64, RangedCoordf64>>, String> {
+    let mut chart = ChartBuilder::on(area)
+        .caption(title, ("sans-serif", 18))
+        .margin(12)
+        .x_label_area_size(44)
+        .y_label_area_size(72)
+        .build_cartesian_2d(xr.0..xr.1, yr.0..yr.1)
+        .map_err(err)?;
+    chart
+        .configure_mesh()
+        .x_desc(x_label)
+        .y_desc(y_label)
+        .x_label_formatter(&|v| fmt_num(*v))
+        .y_label_formatter(&|v| fmt_num(*v))
+        .light_line_style(WHITE)
+        .draw()
+        .map_err(err)?;
+    Ok(chart)
+}
+
 /// A line/point chart of several series with a legend.
 pub fn xy_chart(
     title: &str,
@@ -91,22 +122,7 @@ pub fn xy_chart(
     {
         let root = SVGBackend::with_string(&mut buf, SIZE).into_drawing_area();
         root.fill(&WHITE).map_err(err)?;
-        let mut chart = ChartBuilder::on(&root)
-            .caption(title, ("sans-serif", 18))
-            .margin(12)
-            .x_label_area_size(44)
-            .y_label_area_size(72)
-            .build_cartesian_2d(xr.0..xr.1, yr.0..yr.1)
-            .map_err(err)?;
-        chart
-            .configure_mesh()
-            .x_desc(x_label)
-            .y_desc(y_label)
-            .x_label_formatter(&|v| fmt_num(*v))
-            .y_label_formatter(&|v| fmt_num(*v))
-            .light_line_style(WHITE)
-            .draw()
-            .map_err(err)?;
+        let mut chart = framed(&root, title, xr, yr, x_label, y_label)?;
         for s in series {
             let c = palette(s.colour);
             match s.mark {
@@ -179,22 +195,7 @@ pub fn scatter_coloured(
         let root = SVGBackend::with_string(&mut buf, SIZE).into_drawing_area();
         root.fill(&WHITE).map_err(err)?;
         let (main, side) = root.split_horizontally(SIZE.0 - 110);
-        let mut chart = ChartBuilder::on(&main)
-            .caption(title, ("sans-serif", 18))
-            .margin(12)
-            .x_label_area_size(44)
-            .y_label_area_size(72)
-            .build_cartesian_2d(xr.0..xr.1, yr.0..yr.1)
-            .map_err(err)?;
-        chart
-            .configure_mesh()
-            .x_desc(x_label)
-            .y_desc(y_label)
-            .x_label_formatter(&|v| fmt_num(*v))
-            .y_label_formatter(&|v| fmt_num(*v))
-            .light_line_style(WHITE)
-            .draw()
-            .map_err(err)?;
+        let mut chart = framed(&main, title, xr, yr, x_label, y_label)?;
         let t = |v: f64| (v - cr.0) / (cr.1 - cr.0);
         chart
             .draw_series(
