@@ -101,8 +101,8 @@ fn framed<'a, 'b>(
         .configure_mesh()
         .x_desc(x_label)
         .y_desc(y_label)
-        .x_label_formatter(&|v| fmt_num(*v))
-        .y_label_formatter(&|v| fmt_num(*v))
+        .x_label_formatter(&|v| fmt_tick(*v, xr))
+        .y_label_formatter(&|v| fmt_tick(*v, yr))
         .light_line_style(WHITE)
         .draw()
         .map_err(err)?;
@@ -278,6 +278,39 @@ pub fn fmt_num(v: f64) -> String {
     }
 }
 
+/// Number for an axis label on the range `(lo, hi)`: every label of an axis in the same
+/// notation (fixed, or scientific when the range's largest magnitude is below 0.01 or from 1e5
+/// up) and with as many digits as the tick spacing needs (about a tenth of the range), so an
+/// axis reads 6e-4, 7e-4, ..., 1.0e-3, 1.1e-3 rather than switching notation mid-axis.
+pub fn fmt_tick(v: f64, (lo, hi): (f64, f64)) -> String {
+    let span = hi - lo;
+    if !v.is_finite() || !span.is_finite() || span <= 0.0 {
+        return fmt_num(v);
+    }
+    // The tick spacing: the smallest of 1, 2 and 5 times a power of ten that leaves at most
+    // ten ticks (the mesh's label count), and the decade the labels must resolve.
+    let rough = span / 10.0;
+    let decade = 10f64.powf(rough.log10().floor());
+    let step = [1.0, 2.0, 5.0, 10.0]
+        .into_iter()
+        .map(|m| m * decade)
+        .find(|&st| st >= rough * (1.0 - 1e-12))
+        .unwrap_or(10.0 * decade);
+    let step_exp = step.log10().floor() as i32;
+    let big = lo.abs().max(hi.abs());
+    if (1e-2..1e5).contains(&big) {
+        let decimals = (-step_exp).max(0) as usize;
+        format!("{v:.decimals$}")
+    } else if v.abs() < 10f64.powi(step_exp - 1) {
+        // a tick at zero, off by round-off
+        "0".into()
+    } else {
+        let exp = v.abs().log10().floor() as i32;
+        let digits = (exp - step_exp).clamp(0, 6) as usize;
+        format!("{v:.digits$e}")
+    }
+}
+
 /// One membrane pattern drawn to scale: a window of the membrane seen from the side, with
 /// conducting and inert stripes, the diffusion-layer thickness and the vortex wavelength as
 /// bars of true length. Lengths in m; drawn in micrometres.
@@ -345,8 +378,8 @@ pub fn pattern(fig: &PatternFigure) -> Result<String, String> {
             .configure_mesh()
             .x_desc("along the flow (um)")
             .y_desc("height (um)")
-            .x_label_formatter(&|v| fmt_num(*v))
-            .y_label_formatter(&|v| fmt_num(*v))
+            .x_label_formatter(&|v| fmt_tick(*v, (0.0, w)))
+            .y_label_formatter(&|v| fmt_tick(*v, (-0.05 * hgt, 0.95 * hgt)))
             .disable_mesh()
             .draw()
             .map_err(err)?;
@@ -497,5 +530,25 @@ mod tests {
         assert_eq!(fmt_num(1234.7), "1235");
         assert_eq!(fmt_num(2.5e-7), "2.500e-7");
         assert_eq!(fmt_num(0.5), "0.5");
+    }
+
+    #[test]
+    fn axis_labels_share_one_notation() {
+        let r = (5.0e-4, 1.45e-3);
+        let labels: Vec<String> = [6e-4, 8e-4, 1e-3, 1.1e-3, 1.4e-3]
+            .iter()
+            .map(|&v| fmt_tick(v, r))
+            .collect();
+        assert_eq!(labels, ["6e-4", "8e-4", "1.0e-3", "1.1e-3", "1.4e-3"]);
+        let r = (-0.02, 0.47);
+        let labels: Vec<String> = [0.0, 0.05, 0.1, 0.45]
+            .iter()
+            .map(|&v| fmt_tick(v, r))
+            .collect();
+        assert_eq!(labels, ["0.00", "0.05", "0.10", "0.45"]);
+        assert_eq!(fmt_tick(400.0, (0.0, 1100.0)), "400");
+        assert_eq!(fmt_tick(1e-17, (-1.0, 1.0)), "0.0");
+        assert_eq!(fmt_tick(1e-20, (-1e-3, 1e-3)), "0");
+        assert_eq!(fmt_tick(2.5e6, (0.0, 5e6)), "2.5e6");
     }
 }
