@@ -35,7 +35,7 @@ pub use output::*;
 /// Revision of the model's numbers: raised whenever a change moves the result of any
 /// evaluation (a law, a constant, the integrator or its tolerances, even at round-off).
 /// Study fingerprints include it, so a run is never resumed with a different model.
-pub const MODEL_REVISION: u32 = 5;
+pub const MODEL_REVISION: u32 = 6;
 
 /// The safety note that goes with every result of the model (model.md section 9), for the
 /// README, reports and hand-off cards.

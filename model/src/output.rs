@@ -151,7 +151,8 @@ pub struct Warning {
     pub message: String,
 }
 
-/// Profiles along the channel (on request).
+/// Profiles along the channel (on request): a point at every integration step end and at
+/// every twentieth of the integrated length (from the integrator's continuous extension).
 #[derive(Debug, Clone, PartialEq, Default, Serialize, Deserialize)]
 pub struct Profiles {
     /// Distance from the inlet, m.

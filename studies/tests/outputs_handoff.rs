@@ -522,3 +522,64 @@ fn an_aem_pattern_gets_cards_of_the_anion_exchange_interface() {
         "Peers limit at the CEM",
     );
 }
+
+#[test]
+fn the_window_state_is_the_solved_state_at_mid_length() {
+    // Analytic property of the balances: in co-current flow at a fixed cell-pair voltage, the
+    // state at x of a channel is the outlet state of a channel of length x. The card's bulk
+    // concentration and layer voltage at the window centre (mid-length) must be that state to
+    // the model's integration accuracy (1e-6), also for a product-target design, whose length
+    // is found (the first cards interpolated linearly between integration steps and missed it
+    // by up to 0.5 %).
+    use studies::report::rundir;
+    for edits in [
+        vec![],
+        vec![(
+            "length_mode = \"fixed\"",
+            "length_mode = \"product_target\"\nproduct_target_mol_m3 = 30.0",
+        )],
+    ] {
+        let dir = tempfile::tempdir().unwrap();
+        let ids = fixture::write_run_with(
+            dir.path(),
+            &["salt_removal_rate", "specific_energy"],
+            &edits,
+        );
+        let run = rundir::read(dir.path()).unwrap();
+        let row = run.front.row(ids[0]).unwrap();
+        let design = run.study.design_at(&rundir::x_of(&run, row).unwrap());
+        let inputs = handoff::case_inputs(&run, &design, ids[0], false, None).unwrap();
+        let k = &run.study.constants;
+        let full = model::evaluate(&design, k, &model::Options::default()).unwrap();
+        let mut half = design;
+        half.channel.length_m = inputs.position_m;
+        half.operation.length_mode = model::LengthMode::Fixed;
+        half.operation.drive = model::Drive::Voltage {
+            cell_pair_voltage_v: full.inputs.cell_pair_voltage_V,
+        };
+        close(
+            2.0 * inputs.position_m,
+            full.inputs.length_m,
+            1e-12,
+            "window at mid-length",
+        );
+        let o = model::Options {
+            profiles: true,
+            ..model::Options::default()
+        };
+        let h = model::evaluate(&half, k, &o).unwrap();
+        let hp = h.profiles.unwrap();
+        close(
+            inputs.bulk_concentration_mol_m3,
+            h.performance.outlet_concentration_mol_m3,
+            1e-6,
+            "bulk concentration at mid-length",
+        );
+        close(
+            inputs.layer_voltage_thermal,
+            *hp.cem_layer_voltage_thermal.last().unwrap(),
+            1e-6,
+            "layer voltage at mid-length",
+        );
+    }
+}

@@ -11,7 +11,7 @@ pub mod case;
 use std::path::{Path, PathBuf};
 
 use model::interface::{self, InterfaceConditions, MembraneKind};
-use model::{Design, Drive, Options};
+use model::{Design, Drive, LengthMode, Options};
 
 use crate::error::{io_error, CliError};
 use crate::fsio::write_atomic;
@@ -65,11 +65,29 @@ pub fn case_inputs(
     };
     let eval = model::evaluate(design, constants, &options)
         .map_err(|e| CliError::runtime(format!("{name}: the model failed: {e}")))?;
-    let profiles = eval
+    let length = eval.inputs.length_m;
+    // The profiles have a point at every twentieth of the integrated length, so the window's
+    // state at mid-length is a solved point, not an interpolation. A product-target design
+    // integrates up to its longest length; its profiles are taken from the same channel at the
+    // length found (fixed length, at the voltage found), so mid-length is again a grid point.
+    let refit;
+    let profiles_of = if matches!(design.operation.length_mode, LengthMode::Fixed) {
+        &eval
+    } else {
+        let mut fixed = *design;
+        fixed.channel.length_m = length;
+        fixed.operation.length_mode = LengthMode::Fixed;
+        fixed.operation.drive = Drive::Voltage {
+            cell_pair_voltage_v: eval.inputs.cell_pair_voltage_V,
+        };
+        refit = model::evaluate(&fixed, constants, &options)
+            .map_err(|e| CliError::runtime(format!("{name}: the model failed: {e}")))?;
+        &refit
+    };
+    let profiles = profiles_of
         .profiles
         .as_ref()
         .ok_or_else(|| CliError::runtime(format!("{name}: the model returned no profiles")))?;
-    let length = eval.inputs.length_m;
     let position = 0.5 * length;
     let c_b = interpolate(&profiles.x_m, &profiles.diluate_mol_m3, position);
     let (membrane, membrane_tm) = case::simulated_membrane(&design.membranes);
