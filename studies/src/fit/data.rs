@@ -151,15 +151,26 @@ pub fn read(path: &Path) -> Result<DataSet, CliError> {
 
 /// Parse data from text (`path` is used in messages only).
 pub fn parse(path: &Path, text: &str) -> Result<DataSet, CliError> {
+    // A line of blanks is a blank line: emptied (line numbers kept), because the CSV reader
+    // skips empty lines but would read blanks as a record of one empty field.
+    let text: String = text
+        .split_inclusive(['\n', '\r'])
+        .map(|l| {
+            let body = l.trim_end_matches(['\n', '\r']);
+            if body.trim().is_empty() {
+                &l[body.len()..]
+            } else {
+                l
+            }
+        })
+        .collect();
+    let text = text.as_str();
     let mut rdr = csv::ReaderBuilder::new()
         .comment(Some(b'#'))
         .trim(csv::Trim::All)
         .flexible(true)
         .from_reader(text.as_bytes());
-    let header_line = text
-        .lines()
-        .position(|l| !l.trim().is_empty() && !l.trim_start().starts_with('#'))
-        .map(|i| i + 1);
+    let header_line = record_line(text, 0);
     let Some(header_line) = header_line else {
         return Err(CliError::input(
             path,
@@ -174,10 +185,30 @@ pub fn parse(path: &Path, text: &str) -> Result<DataSet, CliError> {
     };
     let headers = rdr
         .headers()
-        .map_err(|e| csv_error(path, Some(header_line), e))?
+        .map_err(|e| csv_error(path, text, Some(header_line), e))?
         .clone();
     let mut index: BTreeMap<String, usize> = BTreeMap::new();
     for (i, h) in headers.iter().enumerate() {
+        if h.is_empty() {
+            return Err(CliError::input(
+                path,
+                Some(header_line),
+                "header",
+                format!(
+                    "column {} of the header has no name (an empty field or a stray comma)",
+                    i + 1
+                ),
+                format!(
+                    "the columns {}, separated by single commas",
+                    REQUIRED
+                        .iter()
+                        .copied()
+                        .chain(CONDITIONS.iter().map(|(c, _)| *c))
+                        .collect::<Vec<_>>()
+                        .join(", ")
+                ),
+            ));
+        }
         let known = REQUIRED.contains(&h) || CONDITIONS.iter().any(|(c, _)| *c == h);
         if !known {
             let all: Vec<&str> = REQUIRED
@@ -224,10 +255,10 @@ pub fn parse(path: &Path, text: &str) -> Result<DataSet, CliError> {
     let mut points = Vec::new();
     let mut from_study: BTreeMap<String, usize> = BTreeMap::new();
     for record in rdr.records() {
-        let record = record.map_err(|e| csv_error(path, None, e))?;
+        let record = record.map_err(|e| csv_error(path, text, None, e))?;
         let line = record
             .position()
-            .map(|p| p.line() as usize)
+            .and_then(|p| record_line(text, p.byte() as usize))
             .unwrap_or(header_line);
         if record.len() != headers.len() {
             return Err(CliError::input(
@@ -325,8 +356,32 @@ pub fn parse(path: &Path, text: &str) -> Result<DataSet, CliError> {
     })
 }
 
-fn csv_error(path: &Path, line: Option<usize>, e: csv::Error) -> CliError {
-    let line = line.or_else(|| e.position().map(|p| p.line() as usize));
+/// The 1-based line on which the record that the CSV reader starts reading at byte `at`
+/// begins, `None` when only line endings and comments follow. The reader's position of a
+/// record is where the previous one ended: before the line ending (the `\n` of `\r\n`), the
+/// empty lines and the comment lines (`#` in the first column) it skips.
+fn record_line(text: &str, at: usize) -> Option<usize> {
+    let b = text.as_bytes();
+    let mut i = at.min(b.len());
+    while i < b.len() {
+        match b[i] {
+            b'\r' | b'\n' => i += 1,
+            b'#' => {
+                while i < b.len() && b[i] != b'\n' && b[i] != b'\r' {
+                    i += 1;
+                }
+            }
+            _ => return Some(b[..i].iter().filter(|&&c| c == b'\n').count() + 1),
+        }
+    }
+    None
+}
+
+fn csv_error(path: &Path, text: &str, line: Option<usize>, e: csv::Error) -> CliError {
+    let line = line.or_else(|| {
+        e.position()
+            .and_then(|p| record_line(text, p.byte() as usize))
+    });
     CliError::input(
         path,
         line,

@@ -9,7 +9,7 @@ use model::{
 use toml_edit::ImDocument;
 
 use super::keys;
-use super::raw::{line_of, unknown_key_help, RawStudy};
+use super::raw::{line_of, shown_name, syntax_message, unknown_key_help, RawStudy};
 use super::reader::{fmt_f64, Reader};
 use super::search::{
     AlgorithmChoice, Constraint, DesignVariable, Objective, OptimizerSettings, VariableKind,
@@ -452,6 +452,9 @@ fn read_rom(r: &mut Reader) -> Result<RomConstants, CliError> {
             if !x.is_finite() {
                 return Err(r.err("rom", key, "not a finite number", "a finite number"));
             }
+            if let Err((message, allowed)) = check_rom_value(key, x) {
+                return Err(r.err("rom", key, message, allowed));
+            }
             *slot = x;
         }
     }
@@ -460,14 +463,43 @@ fn read_rom(r: &mut Reader) -> Result<RomConstants, CliError> {
         r.record("rom", key, fmt_f64(*x));
         map.insert(key.clone(), serde_json::json!(x));
     }
-    serde_json::from_value(serde_json::Value::Object(map)).map_err(|e| {
-        r.err(
-            "rom",
-            "(constants)",
-            format!("the constants do not form a valid set: {e}"),
-            "the keys of the constants table",
-        )
-    })
+    let constants: RomConstants =
+        serde_json::from_value(serde_json::Value::Object(map)).map_err(|e| {
+            r.err(
+                "rom",
+                "(constants)",
+                format!("the constants do not form a valid set: {e}"),
+                "the keys of the constants table",
+            )
+        })?;
+    // Each value was checked on its own above; the model's check of the whole set is the
+    // safety net, so that nothing downstream meets constants the model refuses.
+    if let Err(e) = constants.validate() {
+        let (field, allowed) = match e {
+            model::ModelError::Input { field, allowed, .. } => (field, allowed),
+            _ => ("(constants)", "the admissible range of each constant"),
+        };
+        return Err(r.err("rom", field, e.to_string(), allowed));
+    }
+    Ok(constants)
+}
+
+/// The model's admissible range of one ROM constant (`RomConstants::validate` with every
+/// other constant at its default): the message and the allowed range when `x` is outside it.
+fn check_rom_value(key: &str, x: f64) -> Result<(), (String, String)> {
+    let mut map = serde_json::Map::new();
+    map.insert(key.to_string(), serde_json::json!(x));
+    let Ok(one) = serde_json::from_value::<RomConstants>(serde_json::Value::Object(map)) else {
+        // Not a constant of the table (or not a number): refused where it is read.
+        return Ok(());
+    };
+    match one.validate() {
+        Err(model::ModelError::Input { value, allowed, .. }) => Err((
+            format!("{} is out of range", super::reader::fmt_num(value)),
+            allowed.to_string(),
+        )),
+        _ => Ok(()),
+    }
 }
 
 /// Read a constants file: a TOML table of ROM keys (at top level or under `[rom]`).
@@ -477,25 +509,49 @@ pub fn read_constants_file(path: &Path, text: &str) -> Result<Vec<(String, f64)>
             path,
             e.span().map(|s| line_of(text, s.start)),
             "(syntax)",
-            format!("not valid TOML: {}", e.message().trim()),
+            syntax_message(&e),
             "TOML syntax",
         )
     })?;
     let root = doc.as_table();
-    let table = match root.get("rom").and_then(|i| i.as_table_like()) {
-        Some(t) => t,
-        None => root as &dyn toml_edit::TableLike,
+    let line_of_key = |table: &dyn toml_edit::TableLike, key: &str| {
+        table
+            .get_key_value(key)
+            .and_then(|(k, _)| k.span())
+            .map(|s| line_of(text, s.start))
+    };
+    let table: &dyn toml_edit::TableLike = match root.get("rom") {
+        None => root,
+        Some(item) => {
+            let Some(t) = item.as_table_like() else {
+                return Err(CliError::input(
+                    path,
+                    line_of_key(root, "rom"),
+                    "rom",
+                    "`rom` must be one section [rom] of constants, not a value or a list of sections",
+                    "[rom] followed by the constants, or the constants at the top of the file",
+                ));
+            };
+            // With a [rom] section, anything outside it would be silently ignored.
+            if let Some((other, _)) = root.iter().find(|(k, _)| *k != "rom") {
+                return Err(CliError::input(
+                    path,
+                    line_of_key(root, other),
+                    shown_name(other),
+                    format!("`{}` is outside the [rom] section", shown_name(other)),
+                    "the constants all under [rom], or all at the top of the file",
+                ));
+            }
+            t
+        }
     };
     let known: Vec<String> = keys::rom_keys().into_iter().map(|(k, _)| k).collect();
     let mut out = Vec::new();
     for (key, item) in table.iter() {
-        let line = table
-            .get_key_value(key)
-            .and_then(|(k, _)| k.span())
-            .map(|s| line_of(text, s.start));
+        let line = line_of_key(table, key);
         if !known.iter().any(|k| k == key) {
             let (msg, allowed) = unknown_key_help("rom", key);
-            return Err(CliError::input(path, line, key, msg, allowed));
+            return Err(CliError::input(path, line, shown_name(key), msg, allowed));
         }
         let x = item
             .as_float()
@@ -504,6 +560,9 @@ pub fn read_constants_file(path: &Path, text: &str) -> Result<Vec<(String, f64)>
             .ok_or_else(|| {
                 CliError::input(path, line, key, "expected a finite number", "a number")
             })?;
+        if let Err((message, allowed)) = check_rom_value(key, x) {
+            return Err(CliError::input(path, line, key, message, allowed));
+        }
         out.push((key.to_string(), x));
     }
     Ok(out)

@@ -47,6 +47,31 @@ pub fn line_of(text: &str, offset: usize) -> usize {
         + 1
 }
 
+/// The parser's description of a TOML syntax error as one line (its lines joined by "; ").
+/// It gives none for a key with `=` at the very end of the file; that gets its own.
+pub fn syntax_message(e: &toml_edit::TomlError) -> String {
+    let lines: Vec<&str> = e
+        .message()
+        .lines()
+        .map(str::trim)
+        .filter(|l| !l.is_empty())
+        .collect();
+    if lines.is_empty() {
+        "not valid TOML: a value is expected here".to_string()
+    } else {
+        format!("not valid TOML: {}", lines.join("; "))
+    }
+}
+
+/// A key or section name as shown in a field: an empty name (`"" = 1`) is shown as `""`.
+pub fn shown_name(name: &str) -> String {
+    if name.is_empty() {
+        "\"\"".to_string()
+    } else {
+        name.to_string()
+    }
+}
+
 fn is_section(name: &str) -> bool {
     SECTIONS.iter().any(|(s, _)| *s == name)
 }
@@ -73,6 +98,12 @@ pub fn valid_keys(section: &str) -> Vec<String> {
 /// A message and a hint for a key that is not in the table.
 pub fn unknown_key_help(section: &str, key: &str) -> (String, String) {
     let valid = valid_keys(section);
+    if key.is_empty() {
+        return (
+            format!("an empty key (\"\") in [{section}]"),
+            valid.join(", "),
+        );
+    }
     // A key written without its unit: `gap` where `gap_mm` exists.
     let with_unit: Vec<&String> = valid
         .iter()
@@ -125,7 +156,7 @@ impl RawStudy {
                 file,
                 line,
                 "(syntax)",
-                format!("not valid TOML: {}", e.message().trim()),
+                syntax_message(&e),
                 "TOML syntax (https://toml.io)",
             )
         })?;
@@ -158,28 +189,26 @@ impl RawStudy {
                         .and_then(|(k, _)| k.span())
                         .map(|s| line_of(text, s.start))
                         .or(line);
-                    let section = format!("variables.{var}");
+                    let section = format!("variables.{}", shown_name(var));
                     if !is_section(&section) {
                         let names = variable_names();
                         let msg = match closest(var, names.iter().copied()) {
                             Some(b) => {
-                                format!("unknown design variable `{var}`; did you mean `{b}`?")
+                                format!(
+                                    "unknown design variable `{}`; did you mean `{b}`?",
+                                    shown_name(var)
+                                )
                             }
-                            None => format!("unknown design variable `{var}`"),
+                            None => format!("unknown design variable `{}`", shown_name(var)),
                         };
-                        return Err(CliError::input(
-                            file,
-                            vline,
-                            format!("variables.{var}"),
-                            msg,
-                            names.join(", "),
-                        ));
+                        return Err(CliError::input(file, vline, section, msg, names.join(", ")));
                     }
                     raw.read_section(text, &section, sub, vline)?;
                 }
                 continue;
             }
             if !is_section(name) {
+                let name = &shown_name(name);
                 if item.is_value() {
                     // A key written above every section header.
                     let home = SECTIONS
@@ -220,11 +249,16 @@ impl RawStudy {
         line: Option<usize>,
     ) -> Result<(), CliError> {
         let table: &dyn TableLike = item.as_table_like().ok_or_else(|| {
+            let what = if item.is_array_of_tables() {
+                format!("must be one section [{section}], not a list of sections [[{section}]]")
+            } else {
+                "must be a section (a table), not a single value".to_string()
+            };
             CliError::input(
                 &self.file,
                 line,
                 section,
-                "must be a section (a table), not a single value",
+                what,
                 format!("[{section}] followed by its keys"),
             )
         })?;
@@ -237,7 +271,7 @@ impl RawStudy {
                 .or_else(|| sub.span())
                 .map(|s| line_of(text, s.start))
                 .or(line);
-            let field = format!("{section}.{key}");
+            let field = format!("{section}.{}", shown_name(key));
             if !valid.iter().any(|v| v == key) {
                 let (msg, allowed) = unknown_key_help(section, key);
                 return Err(CliError::input(&self.file, kline, field, msg, allowed));

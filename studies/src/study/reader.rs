@@ -180,6 +180,23 @@ impl<'a> Reader<'a> {
                 "a finite number",
             ));
         }
+        // A subnormal number (below about 2.2e-308 in size) passes a "> 0" range but the model
+        // cannot compute with it (the quotients overflow).
+        if x != 0.0 && !x.is_normal() {
+            let range = spec
+                .range
+                .map(|r| format!("{} {}, ", r.describe(), spec.unit))
+                .unwrap_or_default();
+            return Err(self.err(
+                section,
+                key,
+                format!("{x:e} {} is too small to compute with", spec.unit),
+                format!(
+                    "{range}at least {:e} in size (or 0 where 0 is allowed)",
+                    f64::MIN_POSITIVE
+                ),
+            ));
+        }
         if let Some(r) = spec.range {
             if !r.contains(x) {
                 return Err(self.err(
