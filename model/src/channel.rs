@@ -783,6 +783,13 @@ fn integrate_once(
     })
 }
 
+/// How a shooting evaluation ends the search: a failed integration, or an outlet that
+/// reproduces itself.
+enum Shot {
+    Model(ModelError),
+    Root(f64),
+}
+
 /// Integrate the channel at cell-pair voltage `u` (V): `length` is the channel length
 /// (fixed mode) or the longest length searched (target mode).
 #[allow(clippy::too_many_arguments)]
@@ -806,18 +813,79 @@ pub fn integrate(
     } else if let End::Target(target) = end {
         streams.c_c_in + ratio * (streams.c_d_in - target)
     } else {
-        let mut g = |c_out: f64| -> Result<f64, ModelError> {
+        // The integrations of the shooting, kept so that the one at the root is not repeated.
+        let mut done: Vec<(f64, ChannelResult)> = Vec::new();
+        // The shooting stops at an outlet that reproduces itself to 1e-2 rel_tol (relative,
+        // down to the relative floor): the root's error then stays a hundred times inside the
+        // integration's own. Such a point ends the search at once (as `Shot::Root`).
+        let c_floor = RELATIVE_FLOOR * streams.c_d_in;
+        let mut g = |c_out: f64| -> Result<f64, Shot> {
             let c_c0 = streams.c_c_in + ratio * (streams.c_d_in - c_out);
-            let r = integrate_once(cell, streams, length, u, c_c0, end, rel_tol, false, stats)?;
-            Ok(r.c_d_out - c_out)
+            let r = integrate_once(cell, streams, length, u, c_c0, end, rel_tol, false, stats)
+                .map_err(Shot::Model)?;
+            let miss = r.c_d_out - c_out;
+            done.push((c_out, r));
+            if miss.abs() <= 1e-2 * rel_tol * c_out.abs().max(c_floor) {
+                return Err(Shot::Root(c_out));
+            }
+            Ok(miss)
         };
-        let hi = streams.c_d_in;
-        let lo = 0.0;
-        let g_hi = g(hi)?;
-        let g_lo = g(lo)?;
-        let tol = 1e-3 * rel_tol * streams.c_d_in;
-        let root = brent(&mut g, lo, hi, g_lo, g_hi, tol, 100)?
-            .ok_or_else(|| ModelError::Numerical("counter-current outlet not bracketed".into()))?;
+        // Secant steps from the outlet with the concentrate at its inlet concentration
+        // (c = c_in) and, one fixed-point step on, the outlet that integration gave: the outlet
+        // depends only weakly on the concentrate, so they converge in a few integrations. When
+        // a step leaves [0, c_in] or does not halve the miss, Brent takes over on a bracket
+        // of the points so far and c = 0, where the miss is never negative.
+        let search = |g: &mut dyn FnMut(f64) -> Result<f64, Shot>| -> Result<f64, Shot> {
+            let hi = streams.c_d_in;
+            let mut pts = vec![(hi, g(hi)?)];
+            let x1 = (hi + pts[0].1).clamp(0.0, hi);
+            pts.push((x1, g(x1)?));
+            for _ in 0..8 {
+                let (xa, ga) = pts[pts.len() - 2];
+                let (xb, gb) = pts[pts.len() - 1];
+                let x = xb - gb * (xb - xa) / (gb - ga);
+                if !(x.is_finite() && (0.0..=hi).contains(&x)) {
+                    break;
+                }
+                let gx = g(x)?;
+                pts.push((x, gx));
+                if gx.abs() > 0.5 * gb.abs() {
+                    break;
+                }
+            }
+            // A bracket: the closest points on either side of the root.
+            let below = pts
+                .iter()
+                .filter(|p| p.1 > 0.0)
+                .min_by(|p, q| p.0.total_cmp(&q.0).reverse());
+            let above = pts
+                .iter()
+                .filter(|p| p.1 < 0.0)
+                .min_by(|p, q| p.0.total_cmp(&q.0));
+            let (a, g_a) = match below {
+                Some(&p) => p,
+                None => (0.0, g(0.0)?),
+            };
+            let (b, g_b) = match above {
+                Some(&p) => p,
+                None => (hi, pts[0].1),
+            };
+            let tol = 1e-3 * rel_tol * streams.c_d_in;
+            brent(g, a, b, g_a, g_b, tol, 100)?.ok_or_else(|| {
+                Shot::Model(ModelError::Numerical(
+                    "counter-current outlet not bracketed".into(),
+                ))
+            })
+        };
+        let root = match search(&mut g) {
+            Ok(root) | Err(Shot::Root(root)) => root,
+            Err(Shot::Model(e)) => return Err(e),
+        };
+        if !want_profiles {
+            if let Some((_, r)) = done.into_iter().find(|(c, _)| *c == root) {
+                return Ok(r);
+            }
+        }
         streams.c_c_in + ratio * (streams.c_d_in - root)
     };
     integrate_once(

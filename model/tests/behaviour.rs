@@ -308,6 +308,45 @@ fn counter_current_and_spacers_evaluate() {
 }
 
 #[test]
+fn counter_current_streams_balance_each_other() {
+    // Conservation (model.md 5): the salt the diluate loses, the concentrate gains:
+    // (c_c,out - c_c,in) h_c u_c = (c_in - c_out) h_d u_d. In counter-current flow the
+    // concentrate outlet is the shooting's unknown, so the balance holds as closely as the
+    // shooting converged (it stops at 1e-2 rel_tol of the outlet).
+    let k = RomConstants::default();
+    let mut rng = ChaCha8Rng::seed_from_u64(77);
+    let mut designs = Vec::new();
+    for u in [0.3, 1.0, 2.0, 3.5] {
+        let mut d = Design::demo();
+        d.operation.drive = Drive::Voltage {
+            cell_pair_voltage_v: u,
+        };
+        designs.push(d);
+    }
+    for _ in 0..24 {
+        designs.push(random_design(&mut rng, Spread::default()));
+    }
+    for mut d in designs {
+        d.operation.flow = FlowArrangement::CounterCurrent;
+        let e = evaluate(&d, &k, &Options::default()).unwrap();
+        let p = &e.performance;
+        let lost = (d.water.feed_concentration_mol_m3 - p.outlet_concentration_mol_m3)
+            * d.channel.gap_m
+            * d.operation.velocity_m_s;
+        let gained = (p.concentrate_outlet_concentration_mol_m3
+            - d.water.concentrate_feed_concentration_mol_m3)
+            * d.channel.concentrate_gap_m
+            * d.operation.concentrate_velocity_m_s;
+        let scale = p.outlet_concentration_mol_m3 * d.channel.gap_m * d.operation.velocity_m_s;
+        assert!(
+            (lost - gained).abs()
+                <= 1.1e-2 * 1e-7 * scale.max(1e-13 * lost.abs()) + 1e-15 * lost.abs(),
+            "{d:?}: lost {lost}, gained {gained}"
+        );
+    }
+}
+
+#[test]
 fn outlet_converged_at_default_tolerance_on_random_designs() {
     // Issue 2: "outlet converged to 1e-6 relative" at the default tolerance. Reference: the
     // same integration at rel_tol 1e-11 (a tolerance-convergence check, common practice; the
