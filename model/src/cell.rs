@@ -323,24 +323,27 @@ impl Cell {
     ) -> (f64, f64, f64, f64, f64) {
         let inv_r_vt = p.r_ohm / self.vt;
         // Last evaluated (v, i, v_sec, di, dis).
-        let mut last = (f64::NAN, 0.0, guess.1, 0.0, 0.0);
-        let residual = |v: f64, last: &mut (f64, f64, f64, f64, f64)| {
+        let last_cell = std::cell::Cell::new((f64::NAN, 0.0, guess.1, 0.0, 0.0));
+        let residual = |v: f64| {
             let (i, di) = prim.current(v);
-            let (vs, dis) = sec.voltage(i, last.2);
-            *last = (v, i, vs, di, dis);
+            let (vs, dis) = sec.voltage(i, last_cell.get().2);
+            last_cell.set((v, i, vs, di, dis));
             let a = 1.0 + i * p.inv_cc;
             let b = 1.0 + i * p.inv_ca;
             let f = i * inv_r_vt + v + vs + 2.0 * (a * b).ln() - drive;
             let df = 1.0 + di * (inv_r_vt + 1.0 / dis + 2.0 * (p.inv_cc / a + p.inv_ca / b));
             (f, df)
         };
-        let (v, _) = newton_bracketed(
-            |v| residual(v, &mut last),
-            0.0,
-            drive,
-            guess.0,
-            1e-10 * (1.0 + drive),
-        );
+        let kink = |a: f64, b: f64, k: f64| (a - k) * (b - k) <= 0.0;
+        // A Newton step across either layer's onset kink: the primary's at its onset voltage,
+        // the secondary's where its voltage, moved along the tangent, passes its onset.
+        let kinked = |x: f64, next: f64| {
+            let (xl, _, vs, di, dis) = last_cell.get();
+            kink(x, next, prim.onset())
+                || (xl == x && kink(vs, vs + di / dis * (next - x), sec.onset()))
+        };
+        let (v, _) = newton_bracketed(residual, 0.0, drive, guess.0, 1e-10 * (1.0 + drive), kinked);
+        let mut last = last_cell.get();
         let dv = v - last.0;
         if dv != 0.0 {
             // The last Newton step is tiny: move the last evaluation along its tangent (the
@@ -349,7 +352,6 @@ impl Cell {
             let dvs = last.3 * dv / last.4;
             let vs = last.2 + dvs;
             let tiny = 1e-5;
-            let kink = |a: f64, b: f64, k: f64| (a - k) * (b - k) <= 0.0;
             if dv.abs() <= tiny
                 && dvs.abs() <= tiny
                 && !kink(last.0, v, prim.onset())
@@ -357,7 +359,8 @@ impl Cell {
             {
                 last = (v, last.1 + last.3 * dv, vs, last.3, last.4);
             } else {
-                residual(v, &mut last);
+                residual(v);
+                last = last_cell.get();
             }
         }
         (v, last.2, last.1, last.3, last.4)

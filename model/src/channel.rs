@@ -21,7 +21,7 @@
 
 use crate::cell::{Cell, Guess, PointSolution};
 use crate::constants::FARADAY;
-use crate::numerics::brent;
+use crate::numerics::secant_then_brent;
 use crate::output::Profiles;
 use crate::ModelError;
 
@@ -783,9 +783,10 @@ fn integrate_once(
     })
 }
 
-/// How a shooting evaluation ends the search: a failed integration, or an outlet that
-/// reproduces itself.
-enum Shot {
+/// How an evaluation of an outer search over whole integrations (the counter-current
+/// shooting, the voltage of a given current) ends the search: a failed integration, or a
+/// point whose residual is small enough.
+pub(crate) enum Shot {
     Model(ModelError),
     Root(f64),
 }
@@ -832,46 +833,24 @@ pub fn integrate(
         };
         // Secant steps from the outlet with the concentrate at its inlet concentration
         // (c = c_in) and, one fixed-point step on, the outlet that integration gave: the outlet
-        // depends only weakly on the concentrate, so they converge in a few integrations. When
-        // a step leaves [0, c_in] or does not halve the miss, Brent takes over on a bracket
-        // of the points so far and c = 0, where the miss is never negative.
+        // depends only weakly on the concentrate, so they converge in a few integrations.
+        // Brent takes over when they stall, with c = 0 (where the miss is never negative) as
+        // the end of the bracket that the points may lack.
         let search = |g: &mut dyn FnMut(f64) -> Result<f64, Shot>| -> Result<f64, Shot> {
             let hi = streams.c_d_in;
-            let mut pts = vec![(hi, g(hi)?)];
-            let x1 = (hi + pts[0].1).clamp(0.0, hi);
-            pts.push((x1, g(x1)?));
-            for _ in 0..8 {
-                let (xa, ga) = pts[pts.len() - 2];
-                let (xb, gb) = pts[pts.len() - 1];
-                let x = xb - gb * (xb - xa) / (gb - ga);
-                if !(x.is_finite() && (0.0..=hi).contains(&x)) {
-                    break;
-                }
-                let gx = g(x)?;
-                pts.push((x, gx));
-                if gx.abs() > 0.5 * gb.abs() {
-                    break;
-                }
-            }
-            // A bracket: the closest points on either side of the root.
-            let below = pts
-                .iter()
-                .filter(|p| p.1 > 0.0)
-                .min_by(|p, q| p.0.total_cmp(&q.0).reverse());
-            let above = pts
-                .iter()
-                .filter(|p| p.1 < 0.0)
-                .min_by(|p, q| p.0.total_cmp(&q.0));
-            let (a, g_a) = match below {
-                Some(&p) => p,
-                None => (0.0, g(0.0)?),
-            };
-            let (b, g_b) = match above {
-                Some(&p) => p,
-                None => (hi, pts[0].1),
-            };
+            let g_hi = g(hi)?;
+            let x1 = (hi + g_hi).clamp(0.0, hi);
+            let pts = vec![(hi, g_hi), (x1, g(x1)?)];
             let tol = 1e-3 * rel_tol * streams.c_d_in;
-            brent(g, a, b, g_a, g_b, tol, 100)?.ok_or_else(|| {
+            secant_then_brent(
+                g,
+                pts,
+                (0.0, hi),
+                &mut |_| Ok((hi, g_hi)),
+                &mut |g| Ok((0.0, g(0.0)?)),
+                tol,
+            )?
+            .ok_or_else(|| {
                 Shot::Model(ModelError::Numerical(
                     "counter-current outlet not bracketed".into(),
                 ))

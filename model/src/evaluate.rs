@@ -2,12 +2,12 @@
 //! every output (model.md section 6).
 
 use crate::cell::{Cell, Guess};
-use crate::channel::{integrate, ChannelResult, End, Stats, Streams};
+use crate::channel::{integrate, ChannelResult, End, Shot, Stats, Streams};
 use crate::constants::FARADAY;
 use crate::design::{Design, Drive, FlowArrangement, LengthMode, Options, PatternSide};
 use crate::energy::{capital_recovery_factor, levelised_cost, minimum_work_streams, J_PER_KWH};
 use crate::hydraulics::{channel_flow, pumping_power};
-use crate::numerics::brent;
+use crate::numerics::secant_then_brent;
 use crate::output::*;
 use crate::properties::{debye_length, properties};
 use crate::transfer::peers_limit;
@@ -102,41 +102,98 @@ fn run_drive(
             Ok((cell_pair_voltage_v, r))
         }
         Drive::Current { cell_current_a } => {
-            // The total current rises monotonically with the cell-pair voltage: bracket it
-            // from the inlet membrane potential upwards, then Brent.
+            // The total current rises monotonically with the cell-pair voltage. Secant steps
+            // from a first guess (the inlet law at the channel-mean layers carrying the mean
+            // current density) and a second one scaled by the current it gave; a voltage whose
+            // current is within 1e-2 rel_tol of the target ends the search (its integration is
+            // kept, not repeated). Brent takes over when the steps stall, on a bracket
+            // completed by the inlet membrane potential (no current) and, above, by doubling
+            // the drive.
             let w = d.channel.width_m;
+            let target = cell_current_a;
             let e_in = (2.0 * cell.xi0 * cell.vt * (st.c_c_in / st.c_d_in).ln()).max(0.0);
-            let current = |u: f64, stats: &mut Stats| -> Result<f64, ModelError> {
-                let r = integrate(cell, st, l, u, end, opts.rel_tol, false, stats)?;
-                Ok(w * r.current_per_width - cell_current_a)
-            };
-            let lo = e_in + 1e-9;
-            let f_lo = current(lo, stats)?;
-            let mut hi = e_in + 0.25;
-            let mut f_hi = current(hi, stats)?;
-            while f_hi < 0.0 {
-                hi = e_in + 2.0 * (hi - e_in);
-                if hi > 50.0 {
-                    return Err(ModelError::Input {
-                        field: "cell_current_a",
-                        value: cell_current_a,
-                        allowed: "a current this cell pair carries below 50 V",
-                    });
+            let mut done: Vec<(f64, ChannelResult)> = Vec::new();
+            let mut miss = |u: f64| -> Result<f64, Shot> {
+                let r = integrate(cell, st, l, u, end, opts.rel_tol, false, stats)
+                    .map_err(Shot::Model)?;
+                let m = w * r.current_per_width - target;
+                done.push((u, r));
+                if m.abs() <= 1e-2 * opts.rel_tol * target {
+                    return Err(Shot::Root(u));
                 }
-                f_hi = current(hi, stats)?;
+                Ok(m)
+            };
+            let u_max = 50.0;
+            let guess = {
+                let p = cell.point(
+                    cell.sh_d.hydraulic_diameter_m / cell.sh_d.mean(l),
+                    cell.sh_c.hydraulic_diameter_m / cell.sh_c.mean(l),
+                    st.c_d_in,
+                    st.c_c_in,
+                );
+                let u = cell.voltage_at(&p, target / (w * l));
+                if u.is_finite() && u > e_in {
+                    u.min(u_max)
+                } else {
+                    e_in + 0.25
+                }
+            };
+            let search = |f: &mut dyn FnMut(f64) -> Result<f64, Shot>| -> Result<f64, Shot> {
+                let m0 = f(guess)?;
+                let scale = if m0 + target > 0.0 {
+                    (target / (m0 + target)).clamp(0.1, 10.0)
+                } else {
+                    2.0
+                };
+                let u1 = (e_in + (guess - e_in) * scale).min(u_max);
+                let pts = if u1 != guess {
+                    vec![(guess, m0), (u1, f(u1)?)]
+                } else {
+                    vec![(guess, m0)]
+                };
+                let top = guess.max(u1);
+                secant_then_brent(
+                    f,
+                    pts,
+                    (e_in, u_max),
+                    &mut |f| {
+                        let lo = e_in + 1e-9;
+                        Ok((lo, f(lo)?))
+                    },
+                    &mut |f| {
+                        let mut hi = top;
+                        loop {
+                            hi = (e_in + 2.0 * (hi - e_in)).min(u_max);
+                            let m = f(hi)?;
+                            if m > 0.0 {
+                                return Ok((hi, m));
+                            }
+                            if hi >= u_max {
+                                return Err(Shot::Model(ModelError::Input {
+                                    field: "cell_current_a",
+                                    value: cell_current_a,
+                                    allowed: "a current this cell pair carries below 50 V",
+                                }));
+                            }
+                        }
+                    },
+                    1e-3 * opts.rel_tol * top,
+                )?
+                .ok_or_else(|| {
+                    Shot::Model(ModelError::Numerical(
+                        "cell voltage for the given current not bracketed".into(),
+                    ))
+                })
+            };
+            let u = match search(&mut miss) {
+                Ok(u) | Err(Shot::Root(u)) => u,
+                Err(Shot::Model(e)) => return Err(e),
+            };
+            if !opts.profiles {
+                if let Some((_, r)) = done.into_iter().find(|(v, _)| *v == u) {
+                    return Ok((u, r));
+                }
             }
-            let u = brent(
-                |u| current(u, stats),
-                lo,
-                hi,
-                f_lo,
-                f_hi,
-                1e-3 * opts.rel_tol * hi,
-                200,
-            )?
-            .ok_or_else(|| {
-                ModelError::Numerical("cell voltage for the given current not bracketed".into())
-            })?;
             let r = integrate(cell, st, l, u, end, opts.rel_tol, opts.profiles, stats)?;
             Ok((u, r))
         }

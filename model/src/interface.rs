@@ -431,6 +431,8 @@ impl Layer {
             v_hi,
             guess,
             1e-11 * (1.0 + v_hi),
+            // The overlimiting branch alone: no kink inside [v_c, v_hi].
+            |_, _| false,
         );
         let (_, d) = self.current(v);
         (v, d)

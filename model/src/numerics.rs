@@ -92,14 +92,17 @@ pub fn erfc(x: f64) -> f64 {
 /// does not halve the residual, is replaced by bisection, so convergence is guaranteed and
 /// at least linear; near the root it is quadratic. Stops when the step is below `x_tol`, or
 /// when the error left after the last Newton step, (f'' / 2 f') step^2 with f'' measured from
-/// the derivatives at the last two Newton iterates, is below `x_tol / 4`. Returns the root and
-/// the number of function calls.
+/// the derivatives at the last two Newton iterates, is below `x_tol / 4`, unless
+/// `kinked(x, next)` says that the step from x to next crosses a kink of `f` (a jump of the
+/// derivative: the curvature measured on one side says nothing of the other). Returns the
+/// root and the number of function calls.
 pub fn newton_bracketed(
     mut f: impl FnMut(f64) -> (f64, f64),
     mut lo: f64,
     mut hi: f64,
     x0: f64,
     x_tol: f64,
+    kinked: impl Fn(f64, f64) -> bool,
 ) -> (f64, u32) {
     let mut x = if x0 > lo && x0 < hi {
         x0
@@ -133,7 +136,7 @@ pub fn newton_bracketed(
         if good {
             if let Some((xp, dfp)) = prev.filter(|p| p.0 != x) {
                 let k = ((dfx - dfp) / (x - xp)).abs() / (2.0 * dfx);
-                if k * step * step <= 0.25 * x_tol {
+                if k * step * step <= 0.25 * x_tol && !kinked(x, next) {
                     return (next, calls);
                 }
             }
@@ -229,6 +232,67 @@ pub fn brent<E>(
     Ok(Some(b))
 }
 
+/// Root of a monotone function whose evaluations are costly (a whole channel integration):
+/// secant steps from the last two of the evaluated points `pts` (x, f(x)), as long as each step
+/// stays inside `domain` and halves |f| (at most eight), then Brent ([`brent`]) on the
+/// tightest bracket among all evaluated points (the negative value closest to zero and the
+/// positive one closest to zero). `below` and `above` supply an evaluated point with f < 0 and
+/// f > 0 when none is among them yet (for example an end of the domain, or a doubling search).
+/// `f` may end the search early with an error, e.g. once its residual is small enough. Returns
+/// the root (x within `tol`); None when Brent finds no sign change.
+// The supplier closures take the function itself, so their type spells it out.
+#[allow(clippy::type_complexity)]
+pub fn secant_then_brent<E>(
+    f: &mut dyn FnMut(f64) -> Result<f64, E>,
+    mut pts: Vec<(f64, f64)>,
+    domain: (f64, f64),
+    below: &mut dyn FnMut(&mut dyn FnMut(f64) -> Result<f64, E>) -> Result<(f64, f64), E>,
+    above: &mut dyn FnMut(&mut dyn FnMut(f64) -> Result<f64, E>) -> Result<(f64, f64), E>,
+    tol: f64,
+) -> Result<Option<f64>, E> {
+    for _ in 0..8 {
+        if pts.len() < 2 {
+            break;
+        }
+        let (xa, fa) = pts[pts.len() - 2];
+        let (xb, fb) = pts[pts.len() - 1];
+        let x = xb - fb * (xb - xa) / (fb - fa);
+        if !(x.is_finite() && x >= domain.0 && x <= domain.1) || x == xb {
+            break;
+        }
+        let fx = f(x)?;
+        if fx == 0.0 {
+            return Ok(Some(x));
+        }
+        pts.push((x, fx));
+        if fx.abs() > 0.5 * fb.abs() {
+            break;
+        }
+    }
+    if let Some(&(x, _)) = pts.iter().find(|p| p.1 == 0.0) {
+        return Ok(Some(x));
+    }
+    let neg = pts
+        .iter()
+        .filter(|p| p.1 < 0.0)
+        .max_by(|p, q| p.1.total_cmp(&q.1))
+        .copied();
+    let pos = pts
+        .iter()
+        .filter(|p| p.1 > 0.0)
+        .min_by(|p, q| p.1.total_cmp(&q.1))
+        .copied();
+    let (a, fa) = match neg {
+        Some(p) => p,
+        None => below(f)?,
+    };
+    let (b, fb) = match pos {
+        Some(p) => p,
+        None => above(f)?,
+    };
+    brent(f, a, b, fa, fb, tol, 100)
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -274,9 +338,40 @@ mod tests {
 
     #[test]
     fn newton_bracketed_finds_cube_root() {
-        let (x, calls) = newton_bracketed(|x| (x * x * x - 2.0, 3.0 * x * x), 0.0, 2.0, 1.9, 1e-14);
+        let (x, calls) = newton_bracketed(
+            |x| (x * x * x - 2.0, 3.0 * x * x),
+            0.0,
+            2.0,
+            1.9,
+            1e-14,
+            |_, _| false,
+        );
         assert!((x - 2f64.cbrt()).abs() < 1e-12);
         assert!(calls < 20);
+    }
+
+    #[test]
+    fn newton_bracketed_does_not_stop_on_a_step_across_a_kink() {
+        // Analytic: f = (x - 1) - 0.01 (x - 1)^2 up to the kink at xk = 1 - 1e-5, then slope
+        // 10; the root is xk - f(xk) / 10. From 0.95 the Newton iterates of the concave left
+        // branch stay left of the kink until a short last step, which lands near the left
+        // branch's own root, 1; told of the kink, the solve goes on to the true root.
+        let xk = 1.0 - 1e-5;
+        let left = |x: f64| (x - 1.0) - 0.01 * (x - 1.0) * (x - 1.0);
+        let f = |x: f64| {
+            if x <= xk {
+                (left(x), 1.0 - 0.02 * (x - 1.0))
+            } else {
+                (left(xk) + 10.0 * (x - xk), 10.0)
+            }
+        };
+        let root = xk - left(xk) / 10.0;
+        let kink = |a: f64, b: f64| (a - xk) * (b - xk) <= 0.0;
+        let (x, _) = newton_bracketed(f, 0.0, 2.0, 0.95, 1e-10, kink);
+        assert!((x - root).abs() < 1e-10, "{x} vs {root}");
+        // Without the kink the curvature stop accepts the left branch's root.
+        let (x, _) = newton_bracketed(f, 0.0, 2.0, 0.95, 1e-10, |_, _| false);
+        assert!((x - root).abs() > 1e-7, "{x}");
     }
 
     #[test]
@@ -291,5 +386,58 @@ mod tests {
             100,
         );
         assert!((r.unwrap().unwrap() - 0.739_085_133_215_160_6).abs() < 1e-12);
+    }
+
+    #[test]
+    fn secant_then_brent_finds_roots_of_monotone_functions() {
+        // Analytic roots: x^3 + x - 1 = 0 at x = 0.682327803828019... (the real root of the
+        // cubic, by Cardano's formula), and the decreasing 2 - x - 0.05 x^2 at
+        // x = 10 (sqrt(1.4) - 1) = 1.83215956619923...
+        let cardano = {
+            let d = (1.0f64 / 4.0 + 1.0 / 27.0).sqrt();
+            (0.5 + d).cbrt() + (0.5 - d).cbrt()
+        };
+        let mut calls = 0;
+        let mut f = |x: f64| -> Result<f64, ()> {
+            calls += 1;
+            Ok(x * x * x + x - 1.0)
+        };
+        let pts = vec![(2.0, f(2.0).unwrap()), (1.0, f(1.0).unwrap())];
+        let mut below = |f: &mut dyn FnMut(f64) -> Result<f64, ()>| Ok((0.0, f(0.0)?));
+        let mut above = |_: &mut dyn FnMut(f64) -> Result<f64, ()>| unreachable!();
+        let r = secant_then_brent(&mut f, pts, (0.0, 2.0), &mut below, &mut above, 1e-13)
+            .unwrap()
+            .unwrap();
+        assert!((r - cardano).abs() < 1e-12, "{r} vs {cardano}");
+        assert!(calls <= 12, "{calls} evaluations");
+        let g_root = 10.0 * (1.4f64.sqrt() - 1.0);
+        let mut g = |x: f64| -> Result<f64, ()> { Ok(2.0 - x - 0.05 * x * x) };
+        let pts = vec![(0.0, 2.0), (0.1, g(0.1).unwrap())];
+        let r = secant_then_brent(&mut g, pts, (0.0, 5.0), &mut below, &mut above, 1e-13)
+            .unwrap()
+            .unwrap();
+        assert!((r - g_root).abs() < 1e-12);
+        // A secant step that leaves the domain hands over to Brent with the points supplied.
+        let mut h = |x: f64| -> Result<f64, ()> { Ok((x - 0.3).tanh()) };
+        let pts = vec![(4.0, h(4.0).unwrap()), (3.9, h(3.9).unwrap())];
+        let mut below_h = |f: &mut dyn FnMut(f64) -> Result<f64, ()>| Ok((0.0, f(0.0)?));
+        let r = secant_then_brent(&mut h, pts, (0.0, 4.0), &mut below_h, &mut above, 1e-13)
+            .unwrap()
+            .unwrap();
+        assert!((r - 0.3).abs() < 1e-12);
+        // An early stop passes through.
+        let mut stop = |x: f64| -> Result<f64, f64> {
+            let v = x * x * x + x - 1.0;
+            if v.abs() < 1e-6 {
+                Err(x)
+            } else {
+                Ok(v)
+            }
+        };
+        let pts = vec![(1.0, 1.0), (0.5, -0.375)];
+        let mut b2 = |_: &mut dyn FnMut(f64) -> Result<f64, f64>| unreachable!();
+        let mut a2 = |_: &mut dyn FnMut(f64) -> Result<f64, f64>| unreachable!();
+        let e = secant_then_brent(&mut stop, pts, (0.0, 2.0), &mut b2, &mut a2, 1e-13);
+        assert!(matches!(e, Err(x) if (x - cardano).abs() < 1e-5));
     }
 }
