@@ -125,11 +125,27 @@ fn run_drive(
             };
             let u_max = 50.0;
             let guess = {
+                // The outlets follow from the current by the salt balance (water splitting
+                // aside); the law is taken at their log-mean concentrations. On 397 random
+                // designs driven by the current of a random voltage (`--example drives`):
+                // 5.7 integrations per solve, against 12.7 with Brent from a doubling
+                // bracket; floors of the outlet at 0.1 to 0.5 of the feed did not do better.
+                let removed = cell.xi0 * target / (FARADAY * cell.gap_d * st.u_d * w);
+                let c_out = (st.c_d_in - removed).max(0.01 * st.c_d_in);
+                let c_c_out =
+                    st.c_c_in + (st.c_d_in - c_out) * cell.gap_d * st.u_d / (cell.gap_c * st.u_c);
+                let log_mean = |a: f64, b: f64| {
+                    if (a - b).abs() <= 1e-9 * a {
+                        a
+                    } else {
+                        (a - b) / (a / b).ln()
+                    }
+                };
                 let p = cell.point(
                     cell.sh_d.hydraulic_diameter_m / cell.sh_d.mean(l),
                     cell.sh_c.hydraulic_diameter_m / cell.sh_c.mean(l),
-                    st.c_d_in,
-                    st.c_c_in,
+                    log_mean(st.c_d_in, c_out),
+                    log_mean(c_c_out, st.c_c_in),
                 );
                 let u = cell.voltage_at(&p, target / (w * l));
                 if u.is_finite() && u > e_in {
