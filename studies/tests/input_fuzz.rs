@@ -609,7 +609,7 @@ fn mutate(text: &str, m: &Mutation) -> (String, Option<(usize, String)>) {
 }
 
 proptest! {
-    #![proptest_config(config(700))]
+    #![proptest_config(config(3000))]
 
     /// Property 1: one mutation of a demo study.
     #[test]
@@ -626,7 +626,7 @@ proptest! {
 }
 
 proptest! {
-    #![proptest_config(config(250))]
+    #![proptest_config(config(1000))]
 
     /// Property 1b: two to four mutations stacked (only the general checks).
     #[test]
@@ -667,7 +667,7 @@ fn set_strategy() -> impl Strategy<Value = String> {
 }
 
 proptest! {
-    #![proptest_config(config(400))]
+    #![proptest_config(config(1500))]
 
     /// Property 2: random `--set` options on the quick demo.
     #[test]
@@ -863,7 +863,7 @@ fn check_csv(text: &str) -> Result<(), TestCaseError> {
 }
 
 proptest! {
-    #![proptest_config(config(600))]
+    #![proptest_config(config(2000))]
 
     /// Property 3a: structured random CSV data for `stria fit`.
     #[test]
@@ -906,7 +906,7 @@ fn constants_line_strategy() -> impl Strategy<Value = String> {
 }
 
 proptest! {
-    #![proptest_config(config(300))]
+    #![proptest_config(config(800))]
 
     /// Property 3c: random constants files named by `[rom] constants_file`.
     #[test]
