@@ -452,7 +452,7 @@ fn read_rom(r: &mut Reader) -> Result<RomConstants, CliError> {
             if !x.is_finite() {
                 return Err(r.err("rom", key, "not a finite number", "a finite number"));
             }
-            if let Err((message, allowed)) = check_rom_value(key, x) {
+            if let Err((message, allowed)) = keys::check_rom_value(key, x) {
                 return Err(r.err("rom", key, message, allowed));
             }
             *slot = x;
@@ -482,24 +482,6 @@ fn read_rom(r: &mut Reader) -> Result<RomConstants, CliError> {
         return Err(r.err("rom", field, e.to_string(), allowed));
     }
     Ok(constants)
-}
-
-/// The model's admissible range of one ROM constant (`RomConstants::validate` with every
-/// other constant at its default): the message and the allowed range when `x` is outside it.
-fn check_rom_value(key: &str, x: f64) -> Result<(), (String, String)> {
-    let mut map = serde_json::Map::new();
-    map.insert(key.to_string(), serde_json::json!(x));
-    let Ok(one) = serde_json::from_value::<RomConstants>(serde_json::Value::Object(map)) else {
-        // Not a constant of the table (or not a number): refused where it is read.
-        return Ok(());
-    };
-    match one.validate() {
-        Err(model::ModelError::Input { value, allowed, .. }) => Err((
-            format!("{} is out of range", super::reader::fmt_num(value)),
-            allowed.to_string(),
-        )),
-        _ => Ok(()),
-    }
 }
 
 /// Read a constants file: a TOML table of ROM keys (at top level or under `[rom]`).
@@ -560,7 +542,7 @@ pub fn read_constants_file(path: &Path, text: &str) -> Result<Vec<(String, f64)>
             .ok_or_else(|| {
                 CliError::input(path, line, key, "expected a finite number", "a number")
             })?;
-        if let Err((message, allowed)) = check_rom_value(key, x) {
+        if let Err((message, allowed)) = keys::check_rom_value(key, x) {
             return Err(CliError::input(path, line, key, message, allowed));
         }
         out.push((key.to_string(), x));

@@ -334,6 +334,33 @@ pub fn rom_keys() -> Vec<(String, f64)> {
     out
 }
 
+/// The model's admissible range of one ROM constant (`model::RomConstants::validate` with
+/// every other constant at its default): the message and the allowed range when `x` is
+/// outside it. A key that is not a constant passes (it is refused where it is read).
+pub fn check_rom_value(key: &str, x: f64) -> Result<(), (String, String)> {
+    let mut map = serde_json::Map::new();
+    map.insert(key.to_string(), serde_json::json!(x));
+    let Ok(one) = serde_json::from_value::<model::RomConstants>(serde_json::Value::Object(map))
+    else {
+        return Ok(());
+    };
+    match one.validate() {
+        Err(model::ModelError::Input { value, allowed, .. }) => {
+            Err((format!("{value} is out of range"), allowed.to_string()))
+        }
+        _ => Ok(()),
+    }
+}
+
+/// The admissible range of a ROM constant in words (every lower end is at least 0, so -1 is
+/// outside each).
+fn rom_allowed(key: &str) -> String {
+    check_rom_value(key, -1.0)
+        .err()
+        .map(|(_, allowed)| allowed)
+        .unwrap_or_else(|| "finite".to_string())
+}
+
 /// Look a key up.
 pub fn spec(section: &str, key: &str) -> Option<&'static KeySpec> {
     KEYS.iter().find(|s| s.section == section && s.key == key)
@@ -430,7 +457,8 @@ pub fn reference_markdown() -> String {
                     .map(|r| (r.symbol, r.unit))
                     .unwrap_or(("", "-"));
                 out.push_str(&format!(
-                    "| `{key}` | number | {unit} | the model's value | finite | | ROM constant {symbol}; default and source in the model's constants table (`stria check` prints the values in force). |\n"
+                    "| `{key}` | number | {unit} | the model's value | {} | | ROM constant {symbol}; default and source in the model's constants table (`stria check` prints the values in force). |\n",
+                    rom_allowed(&key)
                 ));
             }
         }
