@@ -243,10 +243,15 @@ impl Run {
             return Err(setting("max_evaluations", "must be at least 1"));
         }
         if let Some(eps) = &config.archive_epsilon {
-            if eps.len() != m || eps.iter().any(|e| !(e.is_finite() && *e > 0.0)) {
+            // A subnormal grid size overflows the box index of any ordinary objective value.
+            if eps.len() != m
+                || eps
+                    .iter()
+                    .any(|e| !(e.is_finite() && e.is_normal() && *e > 0.0))
+            {
                 return Err(setting(
                     "archive_epsilon",
-                    format!("needs {m} positive finite values, one per objective"),
+                    format!("needs {m} positive finite values (not subnormal), one per objective"),
                 ));
             }
         }

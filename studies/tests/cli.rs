@@ -96,6 +96,35 @@ fn out_of_range_value_gives_the_allowed_range() {
 }
 
 #[test]
+fn an_archive_grid_too_fine_to_number_its_boxes_is_refused() {
+    // A grid of 5e-324 put every design into one box, and the run's front collapsed to one
+    // design; every value must be from 1e-12 up, and the count must match the objectives.
+    let dir = tempfile::tempdir().unwrap();
+    for (eps, also) in [
+        ("[5e-324, 5e-324]", "too small"),
+        ("[1e-3]", "1 values given for 2 objectives"),
+    ] {
+        let p = study_with(
+            dir.path(),
+            "grid.toml",
+            &[(
+                "max_evaluations = 4000",
+                &format!("max_evaluations = 4000\narchive_epsilon = {eps}"),
+            )],
+        );
+        let line = line_of(&p, "archive_epsilon");
+        let o = stria(&["check", p.to_str().unwrap()]);
+        assert_bad(
+            &o,
+            "grid.toml",
+            Some(line),
+            "optimizer.archive_epsilon",
+            also,
+        );
+    }
+}
+
+#[test]
 fn key_without_its_unit_is_refused() {
     let dir = tempfile::tempdir().unwrap();
     let p = study_with(

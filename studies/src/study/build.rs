@@ -616,12 +616,23 @@ fn read_optimizer(r: &mut Reader, n_objectives: usize) -> Result<OptimizerSettin
     let stall_generations = r.int("optimizer", "stall_generations")?;
     let archive_epsilon = r.float_list("optimizer", "archive_epsilon")?;
     if let Some(eps) = &archive_epsilon {
-        if eps.len() != n_objectives || eps.iter().any(|e| !(e.is_finite() && *e > 0.0)) {
+        let allowed = "one number from 1e-12 up per objective, in the objective's unit, in the order of objectives.list";
+        if eps.len() != n_objectives {
             return Err(r.err(
                 "optimizer",
                 "archive_epsilon",
                 format!("{} values given for {} objectives", eps.len(), n_objectives),
-                "one positive number per objective, in the objective's unit, in the order of objectives.list",
+                allowed,
+            ));
+        }
+        // Below 1e-12 the grid index of an objective (its value over the grid size) leaves the
+        // integers that a box is numbered by, and every design lands in one box.
+        if let Some(e) = eps.iter().find(|e| !(e.is_finite() && **e >= 1e-12)) {
+            return Err(r.err(
+                "optimizer",
+                "archive_epsilon",
+                format!("grid size {e} is too small (or not a number)"),
+                allowed,
             ));
         }
     }

@@ -312,7 +312,7 @@ pub const KEYS: &[KeySpec] = &[
     budget(k("optimizer", "max_evaluations", Int, "-", 1.0, Value("2000"), closed(1.0, 1e13), None, "Evaluation budget (may be raised when resuming)."),),
     budget(k("optimizer", "hours", Float, "h", 3600.0, Unset, pos(10000.0), None, "Wall-clock budget of one invocation of `stria run`."),),
     budget(k("optimizer", "stall_generations", Int, "-", 1.0, Unset, closed(1.0, 1e9), None, "Stop when the hypervolume has not grown for this many generations."),),
-    k("optimizer", "archive_epsilon", FloatList, "objective units", 1.0, Unset, None, None, "Grid size per objective (in the objective's unit) that bounds the archive of a long run."),
+    k("optimizer", "archive_epsilon", FloatList, "objective units", 1.0, Unset, None, None, "Grid size per objective (in the objective's unit, from 1e-12 up) that bounds the archive of a long run."),
     k("optimizer", "solver", Choice(SOLVERS), "-", 1.0, Value("\"nelder_mead\""), None, None, "scalarised: single-objective solver of each sub-problem."),
     k("optimizer", "scalarisation", Choice(SCALARISATIONS), "-", 1.0, Value("\"chebyshev\""), None, None, "scalarised: how objectives are combined."),
     k("optimizer", "subproblems", Int, "-", 1.0, Value("11"), closed(1.0, 10000.0), None, "scalarised: number of weight vectors or epsilon levels."),
