@@ -39,8 +39,8 @@ fn streams(d: &Design) -> Streams {
 
 /// Cell-pair current-voltage curve at the channel inlet: feed concentrations on both sides,
 /// diffusion layers at their channel-mean thickness (d_h / mean Sh). For report figures.
-/// Voltages at or below the membrane potential give zero current. Invalid designs give an
-/// empty curve.
+/// Voltages at or below the membrane potential give zero current; a NaN voltage gives a point
+/// of NaNs. Invalid designs give an empty curve.
 pub fn iv_curve(design: &Design, constants: &RomConstants, voltages_v: &[f64]) -> Vec<IvPoint> {
     if check_design(design, &Options::default()).is_err() || constants.validate().is_err() {
         return Vec::new();
@@ -59,6 +59,14 @@ pub fn iv_curve(design: &Design, constants: &RomConstants, voltages_v: &[f64]) -
     voltages_v
         .iter()
         .map(|&u| {
+            if u.is_nan() {
+                return IvPoint {
+                    voltage_v: u,
+                    current_density_a_m2: f64::NAN,
+                    cem_layer_voltage_thermal: f64::NAN,
+                    active_area_fraction: f64::NAN,
+                };
+            }
             let s = cell.solve(&p, u, &mut guess);
             IvPoint {
                 voltage_v: u,

@@ -83,6 +83,18 @@ pub fn pinning_efficiency(open_fraction: f64, k: &RomConstants) -> f64 {
     (kp * p * (f / p).ln() + kp * (1.0 - p) * ((1.0 - f) / (1.0 - p)).ln()).exp()
 }
 
+/// Scaled complementary error function erfcx(x) = exp(x^2) erfc(x): direct below x = 26
+/// (where exp(x^2) is finite and erfc(x) still normal), above it the asymptotic series
+/// (Abramowitz and Stegun 7.1.23) to the x^-8 term, relative error at most 2e-13 there.
+fn erfcx(x: f64) -> f64 {
+    if x < 26.0 {
+        return (x * x).exp() * erfc(x);
+    }
+    let r = 1.0 / (2.0 * x * x);
+    (1.0 - r * (1.0 - 3.0 * r * (1.0 - 5.0 * r * (1.0 - 7.0 * r))))
+        / (x * std::f64::consts::PI.sqrt())
+}
+
 /// Share of the current carried by water-splitting products at layer voltage `v`:
 /// 0 below the onset `v_ws`, (v - v_ws) / (v - v_ws + s_ws) above.
 #[inline]
@@ -159,6 +171,11 @@ pub struct Layer {
     j_pref: f64,
     /// Error function at the argument belonging to v_c.
     erf_c: ErfAt,
+    /// With a lock-in window so wide against its growth (sigma / q) that the exponential of
+    /// `j_pref` overflows: `j_pref` holds (v_c sigma / q) sqrt(pi/2) alone, and this is
+    /// exp(-z0^2 / (2 sigma^2)) erfcx(-b_c), the v_c end of the integral in scaled form (see
+    /// [`Layer::wide_integral`]); None otherwise.
+    wide_c: Option<f64>,
     /// Vortex wavelength at onset a_lambda delta, m.
     lambda0: f64,
     /// Classic current at onset, A/m^2.
@@ -217,12 +234,17 @@ impl Surface {
         };
         let lambda0 = k.wavelength_prefactor * delta_m;
         let (q, sigma, v_c) = (k.wavelength_exponent, k.lockin_width, k.onset_voltage);
+        let mut wide_c = None;
         let (z0, j_pref, erf_c) = if self.amp != 0.0 {
             let z0 = (self.pitch_m / lambda0).ln();
-            let j_pref = v_c * sigma / q
+            let mut j_pref = v_c * sigma / q
                 * (0.5 * std::f64::consts::PI).sqrt()
                 * (z0 / q + sigma * sigma / (2.0 * q * q)).exp();
             let b_c = -(z0 + sigma * sigma / q) / (sigma * std::f64::consts::SQRT_2);
+            if !j_pref.is_finite() {
+                j_pref = v_c * sigma / q * (0.5 * std::f64::consts::PI).sqrt();
+                wide_c = Some((-z0 * z0 / (2.0 * sigma * sigma)).exp() * erfcx(-b_c));
+            }
             (z0, j_pref, ErfAt::new(b_c))
         } else {
             (
@@ -251,6 +273,7 @@ impl Surface {
             sigma,
             j_pref,
             erf_c,
+            wide_c,
             lambda0,
             i_onset: i_het * self.onset_factor,
         }
@@ -332,9 +355,28 @@ impl Layer {
         }
         let s = (v / self.v_c).ln();
         let z = self.z0 - self.q * s;
-        let alpha = self.a0 + self.amp * (-z * z / (2.0 * self.sigma * self.sigma)).exp();
+        let window = (-z * z / (2.0 * self.sigma * self.sigma)).exp();
+        let alpha = self.a0 + self.amp * window;
         let b = (-z - self.sigma * self.sigma / self.q) / (self.sigma * std::f64::consts::SQRT_2);
+        if let Some(c) = self.wide_c {
+            return (alpha, base + self.amp * self.wide_integral(v, window, b, c));
+        }
         (alpha, base + self.amp * self.j_pref * self.erf_c.diff_to(b))
+    }
+
+    /// The lock-in integral, integral_{v_c}^{v} exp(-z(w)^2 / (2 sigma^2)) dw, when
+    /// exp(z0/q + sigma^2/(2 q^2)) overflows (sigma / q above about 38 at z0 = 0): the same
+    /// closed form with erfc(x) = exp(-x^2) erfcx(x), where the exponentials combine to
+    /// exp(s - z^2/(2 sigma^2)) = (v / v_c) window at v and exp(-z0^2/(2 sigma^2)) at v_c.
+    /// Then b_c <= b <= 0 for every finite v (the window's centre lies beyond v_c e^709);
+    /// where the window has underflowed (v infinite) its end term is 0.
+    fn wide_integral(&self, v: f64, window: f64, b: f64, c: f64) -> f64 {
+        let end = if window > 0.0 {
+            v / self.v_c * window * erfcx(-b)
+        } else {
+            0.0
+        };
+        self.j_pref * (end - c)
     }
 
     /// Overlimiting (electroconvective) current density at `v`, A/m^2 (0 at or below onset).

@@ -30,6 +30,12 @@ pub const SALINITY_RANGE: (f64, f64) = (0.5, 500.0);
 pub const OUTLET_RESISTIVE_MIN: f64 = 1.0;
 /// Temperature range of the Stokes-Einstein scaling of the 25 C ionic data, K.
 pub const TEMPERATURE_RANGE_K: (f64, f64) = (278.15, 323.15);
+/// Lowest feed concentration accepted, mol/m^3: about 0.06 mg/L NaCl, whose conductivity
+/// (1.3e-5 S/m from the CRC Handbook limiting molar conductivity) is only twice that of pure
+/// water (5.5e-6 S/m at 25 C, from memory), whose own ions the model leaves out.
+pub const FEED_MIN_MOL_M3: f64 = 1e-3;
+/// Largest price accepted (electricity per kWh, membrane per m^2), in any currency unit.
+pub const PRICE_MAX: f64 = 1e9;
 
 fn input(
     field: &'static str,
@@ -57,18 +63,21 @@ pub fn check_design(d: &Design, o: &Options) -> Result<(), ModelError> {
         (273.15..=373.15).contains(&w.temperature_k),
         "273.15 to 373.15 K",
     )?;
+    // Below FEED_MIN_MOL_M3 the water's own ions carry as much current as the salt (the
+    // model leaves them out), and a concentration near the smallest normal number makes the
+    // current-voltage inversion divide by zero.
     input(
         "feed_concentration_mol_m3",
         w.feed_concentration_mol_m3,
-        w.feed_concentration_mol_m3 > 0.0 && w.feed_concentration_mol_m3 <= 6000.0,
-        "above 0 up to 6000 mol/m^3",
+        w.feed_concentration_mol_m3 >= FEED_MIN_MOL_M3 && w.feed_concentration_mol_m3 <= 6000.0,
+        "1e-3 to 6000 mol/m^3",
     )?;
     input(
         "concentrate_feed_concentration_mol_m3",
         w.concentrate_feed_concentration_mol_m3,
-        w.concentrate_feed_concentration_mol_m3 > 0.0
+        w.concentrate_feed_concentration_mol_m3 >= FEED_MIN_MOL_M3
             && w.concentrate_feed_concentration_mol_m3 <= 6000.0,
-        "above 0 up to 6000 mol/m^3",
+        "1e-3 to 6000 mol/m^3",
     )?;
     if let crate::design::Salt::Custom {
         cation_diffusivity_m2_s,
@@ -109,17 +118,19 @@ pub fn check_design(d: &Design, o: &Options) -> Result<(), ModelError> {
         c.concentrate_gap_m >= 1e-5 && c.concentrate_gap_m <= 0.01,
         "1e-5 to 0.01 m",
     )?;
+    // No shorter or narrower than the smallest gap: a subnormal length overflowed the
+    // Leveque Sherwood number (L^(-1/3)) and a subnormal width gave a zero flow.
     input(
         "length_m",
         c.length_m,
-        c.length_m > 0.0 && c.length_m <= 100.0,
-        "above 0 up to 100 m",
+        c.length_m >= 1e-5 && c.length_m <= 100.0,
+        "1e-5 to 100 m",
     )?;
     input(
         "width_m",
         c.width_m,
-        c.width_m > 0.0 && c.width_m <= 10.0,
-        "above 0 up to 10 m",
+        c.width_m >= 1e-5 && c.width_m <= 10.0,
+        "1e-5 to 10 m",
     )?;
     match c.spacer {
         Spacer::None => {}
@@ -252,36 +263,39 @@ pub fn check_design(d: &Design, o: &Options) -> Result<(), ModelError> {
             "above 0 and below the feed concentration",
         )?;
     }
+    // Economics: the bounds keep the energy and cost figures finite (a pump efficiency, a
+    // membrane life or operating hours near zero, or a price or capacity near the largest
+    // float, overflowed them); they are far outside any real plant in any currency.
     let e = &d.economics;
     input(
         "electricity_price_per_kwh",
         e.electricity_price_per_kwh,
-        e.electricity_price_per_kwh >= 0.0,
-        "0 or more",
+        (0.0..=PRICE_MAX).contains(&e.electricity_price_per_kwh),
+        "0 to 1e9 per kWh",
     )?;
     input(
         "pump_efficiency",
         e.pump_efficiency,
-        e.pump_efficiency > 0.0 && e.pump_efficiency <= 1.0,
-        "above 0 up to 1",
+        (0.01..=1.0).contains(&e.pump_efficiency),
+        "0.01 to 1",
     )?;
     input(
         "membrane_price_per_m2",
         e.membrane_price_per_m2,
-        e.membrane_price_per_m2 >= 0.0,
-        "0 or more",
+        (0.0..=PRICE_MAX).contains(&e.membrane_price_per_m2),
+        "0 to 1e9 per m^2",
     )?;
     input(
         "pattern_surcharge_per_m2",
         e.pattern_surcharge_per_m2,
-        e.pattern_surcharge_per_m2 >= 0.0,
-        "0 or more",
+        (0.0..=PRICE_MAX).contains(&e.pattern_surcharge_per_m2),
+        "0 to 1e9 per m^2",
     )?;
     input(
         "membrane_life_years",
         e.membrane_life_years,
-        e.membrane_life_years > 0.0 && e.membrane_life_years <= 100.0,
-        "above 0 up to 100 years",
+        (0.01..=100.0).contains(&e.membrane_life_years),
+        "0.01 to 100 years",
     )?;
     input(
         "discount_rate",
@@ -292,14 +306,14 @@ pub fn check_design(d: &Design, o: &Options) -> Result<(), ModelError> {
     input(
         "operating_hours_per_year",
         e.operating_hours_per_year,
-        e.operating_hours_per_year > 0.0 && e.operating_hours_per_year <= 8784.0,
-        "above 0 up to 8784 h",
+        (1.0..=8784.0).contains(&e.operating_hours_per_year),
+        "1 to 8784 h",
     )?;
     input(
         "plant_capacity_m3_day",
         e.plant_capacity_m3_day,
-        e.plant_capacity_m3_day > 0.0,
-        "above 0",
+        e.plant_capacity_m3_day > 0.0 && e.plant_capacity_m3_day <= 1e9,
+        "above 0 up to 1e9 m^3/day",
     )?;
     input(
         "rel_tol",
