@@ -666,10 +666,12 @@ struct Case {
 fn case(inside: bool) -> impl Strategy<Value = Case> {
     (
         base(),
-        prop::collection::vec(change(), 1..=4),
+        // Hostile cases change one to four fields; inside the ranges, up to eight at once
+        // (extreme but admissible combinations).
+        prop::collection::vec(change(), 1..=if inside { 8 } else { 4 }),
         prop_oneof![
             3 => Just(Vec::new()),
-            1 => prop::collection::vec((0..16usize, 0..64usize), 1..=2),
+            1 => prop::collection::vec((0..16usize, 0..64usize), 1..=4),
         ],
         prop_oneof![6 => Just(None), 1 => (0..64usize).prop_map(Some)],
         any::<bool>(),
