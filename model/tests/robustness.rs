@@ -3,8 +3,11 @@
 //! designs of `support`, and one to four fields are overwritten with hostile values: zeros of
 //! both signs, negatives, NaN, infinities, the smallest normal, subnormals, huge values, and
 //! the values just inside and just outside the ranges that `validity::check_design` and
-//! `RomConstants::validate` state (IEEE 754 neighbours, `f64::next_up` / `next_down`). The ROM
-//! constants and the integration tolerance get the same treatment.
+//! `RomConstants::validate` state (IEEE 754 neighbours, `f64::next_up` / `next_down`); the
+//! ranges are written out again below as the contract the model's documentation states. The
+//! ROM constants (up to four) and the integration tolerance get the same treatment. A second
+//! property keeps every value inside its range and changes up to eight at once: extreme but
+//! admissible designs. 4000 + 2000 cases, about 1 s at the test profile.
 //!
 //! Properties:
 //! 1. no panic (caught with `catch_unwind`; the failure message gives the input);
