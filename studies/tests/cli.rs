@@ -125,6 +125,26 @@ fn an_archive_grid_too_fine_to_number_its_boxes_is_refused() {
 }
 
 #[test]
+fn values_the_model_refuses_are_refused_at_their_line() {
+    // The study's allowed ranges are the model's (model/src/validity.rs): a value inside the
+    // study's range but outside the model's passed `stria check` and failed every evaluation.
+    let dir = tempfile::tempdir().unwrap();
+    for (from, to, field) in [
+        (
+            "pump_efficiency = 0.65",
+            "pump_efficiency = 0.005",
+            "economics.pump_efficiency",
+        ),
+        ("length_m = 0.45", "length_m = 1e-6", "channel.length_m"),
+    ] {
+        let p = study_with(dir.path(), "edge.toml", &[(from, to)]);
+        let line = line_of(&p, to);
+        let o = stria(&["check", p.to_str().unwrap()]);
+        assert_bad(&o, "edge.toml", Some(line), field, "out of range");
+    }
+}
+
+#[test]
 fn key_without_its_unit_is_refused() {
     let dir = tempfile::tempdir().unwrap();
     let p = study_with(

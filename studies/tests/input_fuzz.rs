@@ -1100,7 +1100,7 @@ fn subnormal_numbers_are_refused_before_the_model_sees_them() {
     assert_eq!(field, "channel.length_m");
     assert_eq!(line, Some(line_holding(&text, "length_m")));
     assert!(message.contains("too small"), "{message}");
-    assert!(allowed.contains("> 0 and <= 20 m"), "{allowed}");
+    assert!(allowed.contains(">= 1e-5 and <= 20 m"), "{allowed}");
     let e = Study::from_text(
         &study_path("quick.toml"),
         &demo_text("quick.toml"),
