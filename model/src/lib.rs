@@ -49,7 +49,7 @@ and can scale membranes. Defer to local codes and licensed practice.";
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
 pub enum ModelError {
     /// An input outside its physical range.
-    #[error("{field} = {value} is outside its physical range: {allowed}")]
+    #[error("{field} = {} is outside its physical range: {allowed}", shown(*value))]
     Input {
         /// Field name.
         field: &'static str,
@@ -71,4 +71,15 @@ pub enum ModelError {
         /// Outlet concentration at the maximum length, mol/m^3.
         outlet_mol_m3: f64,
     },
+}
+
+/// A number for a message: plain in the usual range, in exponent form when very small or very
+/// large (a subnormal printed plainly runs to hundreds of digits).
+fn shown(v: f64) -> String {
+    let a = v.abs();
+    if v == 0.0 || !v.is_finite() || (1e-4..1e9).contains(&a) {
+        format!("{v}")
+    } else {
+        format!("{v:e}")
+    }
 }

@@ -1215,3 +1215,60 @@ fn the_binary_exits_2_without_a_panic_on_fuzzed_shapes() {
         );
     }
 }
+
+#[test]
+fn every_value_a_study_accepts_the_model_accepts() {
+    // The key table's allowed ranges must lie inside the model's (model/src/validity.rs):
+    // each end of every numeric design key's range (or its nearest admissible neighbour where
+    // the end is open), set on the quick demo, either is refused by the study (another rule,
+    // e.g. both feed forms given) or evaluates without the model refusing the input.
+    let text = demo_text("quick.toml");
+    // Variable bounds too: the design at every variable's lower, then upper, bound.
+    let design_sections = ["water", "channel", "membranes", "operation", "economics"];
+    let mut checked = 0;
+    let mut refused = Vec::new();
+    for spec in KEYS.iter() {
+        let variable = spec.section.starts_with("variables.");
+        if !(design_sections.contains(&spec.section) || variable)
+            || !matches!(spec.kind, keys::Kind::Float)
+        {
+            continue;
+        }
+        let Some(r) = spec.range else { continue };
+        let lo = if r.lo_open {
+            // the smallest value above an open end that the study takes (no subnormals)
+            if r.lo == 0.0 {
+                f64::MIN_POSITIVE
+            } else {
+                r.lo.next_up()
+            }
+        } else {
+            r.lo
+        };
+        let hi = if r.hi_open { r.hi.next_down() } else { r.hi };
+        for v in [lo, hi] {
+            let set = format!("{}.{}={v:e}", spec.section, spec.key);
+            let Ok((study, _)) =
+                Study::from_text(&study_path("quick.toml"), &text, std::slice::from_ref(&set))
+            else {
+                continue;
+            };
+            checked += 1;
+            let lower: Vec<f64> = study.variables.iter().map(|v| v.lower).collect();
+            let upper: Vec<f64> = study.variables.iter().map(|v| v.upper).collect();
+            for x in [study.baseline_x(), lower, upper] {
+                if let Err(e) = study.evaluate_point(&x) {
+                    if e.contains("outside its physical range") {
+                        refused.push(format!("--set {set}: {e}"));
+                    }
+                }
+            }
+        }
+    }
+    assert!(
+        refused.is_empty(),
+        "the study takes these, the model refuses them:\n{}",
+        refused.join("\n")
+    );
+    assert!(checked > 40, "only {checked} range ends checked");
+}

@@ -42,7 +42,7 @@ pub fn build(raw: &RawStudy) -> Result<(Study, Vec<StudyWarning>), CliError> {
 
     let water = read_water(&mut r)?;
     let (channel, concentrate_gap_follows) = read_channel(&mut r)?;
-    let membranes = read_membranes(&mut r)?;
+    let membranes = read_membranes(&mut r, &water)?;
     let (operation, concentrate_velocity_follows) = read_operation(&mut r)?;
     let (economics, currency) = read_economics(&mut r)?;
     let constants = read_rom(&mut r)?;
@@ -175,7 +175,17 @@ fn read_water(r: &mut Reader) -> Result<Water, CliError> {
                 "molar_mass_g_mol = <g/mol>, or give the concentration in mol/m3",
             )
         })?;
-        Ok(x / m * 1000.0)
+        let mol = x / m * 1000.0;
+        // The model's range (model/src/validity.rs), checked here at the g/L key.
+        if !(1e-3..=6000.0).contains(&mol) {
+            return Err(r.err(
+                "water",
+                key,
+                format!("{x} g/L at {m} g/mol is {mol:e} mol/m3, outside the model's range"),
+                "a concentration from 1e-3 to 6000 mol/m3 (check molar_mass_g_mol)",
+            ));
+        }
+        Ok(mol)
     };
     let feed = one_of(r, "water", "feed_mol_m3", "feed_g_L")?.ok_or_else(|| {
         r.err(
@@ -289,9 +299,32 @@ fn float_or(r: &mut Reader, section: &str, key: &str, default: f64) -> Result<f6
     }
 }
 
-fn read_membranes(r: &mut Reader) -> Result<Membranes, CliError> {
+fn read_membranes(r: &mut Reader, water: &Water) -> Result<Membranes, CliError> {
     let cem_t = r.float_req("membranes", "cem_transport_number")?;
     let aem_t = r.float_req("membranes", "aem_transport_number")?;
+    // The model's rule (model/src/validity.rs): a membrane must be more selective than the
+    // solution itself, by 0.01, for its counter-ion.
+    let tp = model::properties::properties(
+        water.salt,
+        water.temperature_k,
+        water.feed_concentration_mol_m3,
+    )
+    .cation_transport_number;
+    for (key, t, solution, ion) in [
+        ("cem_transport_number", cem_t, tp, "cation"),
+        ("aem_transport_number", aem_t, 1.0 - tp, "anion"),
+    ] {
+        if t <= solution + 0.01 {
+            return Err(r.err(
+                "membranes",
+                key,
+                format!(
+                    "{t} is not above the solution's own {ion} transport number ({solution:.3}) by 0.01"
+                ),
+                format!("above {:.3} up to 1 for this salt and temperature", solution + 0.01),
+            ));
+        }
+    }
     let cem_r = r.float_req("membranes", "cem_area_resistance_ohm_cm2")?;
     let aem_r = r.float_req("membranes", "aem_area_resistance_ohm_cm2")?;
     let side = match r.choice("membranes", "pattern_side")?.as_str() {
