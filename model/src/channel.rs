@@ -791,6 +791,33 @@ pub(crate) enum Shot {
     Root(f64),
 }
 
+/// An outer search over whole integrations. `at(x)` integrates and returns the residual and
+/// the result; a residual within `close_enough(x)` ends the search there. `search` drives
+/// the residual function (its errors pass through, `Shot::Root` included). Returns the root
+/// and, when it was one of the integrations made, that integration's result (so the caller
+/// need not repeat it).
+pub(crate) fn outer_search(
+    mut at: impl FnMut(f64) -> Result<(f64, ChannelResult), ModelError>,
+    close_enough: impl Fn(f64) -> f64,
+    search: impl FnOnce(&mut dyn FnMut(f64) -> Result<f64, Shot>) -> Result<f64, Shot>,
+) -> Result<(f64, Option<ChannelResult>), ModelError> {
+    let mut done: Vec<(f64, ChannelResult)> = Vec::new();
+    let mut residual = |x: f64| -> Result<f64, Shot> {
+        let (miss, r) = at(x).map_err(Shot::Model)?;
+        done.push((x, r));
+        if miss.abs() <= close_enough(x) {
+            return Err(Shot::Root(x));
+        }
+        Ok(miss)
+    };
+    let root = match search(&mut residual) {
+        Ok(root) | Err(Shot::Root(root)) => root,
+        Err(Shot::Model(e)) => return Err(e),
+    };
+    let kept = done.into_iter().find(|(x, _)| *x == root).map(|(_, r)| r);
+    Ok((root, kept))
+}
+
 /// Integrate the channel at cell-pair voltage `u` (V): `length` is the channel length
 /// (fixed mode) or the longest length searched (target mode).
 #[allow(clippy::too_many_arguments)]
@@ -814,23 +841,16 @@ pub fn integrate(
     } else if let End::Target(target) = end {
         streams.c_c_in + ratio * (streams.c_d_in - target)
     } else {
-        // The integrations of the shooting, kept so that the one at the root is not repeated.
-        let mut done: Vec<(f64, ChannelResult)> = Vec::new();
         // The shooting stops at an outlet that reproduces itself to 1e-2 rel_tol (relative,
         // down to the relative floor): the root's error then stays a hundred times inside the
-        // integration's own. Such a point ends the search at once (as `Shot::Root`).
+        // integration's own.
         let c_floor = RELATIVE_FLOOR * streams.c_d_in;
-        let mut g = |c_out: f64| -> Result<f64, Shot> {
+        let at = |c_out: f64| {
             let c_c0 = streams.c_c_in + ratio * (streams.c_d_in - c_out);
-            let r = integrate_once(cell, streams, length, u, c_c0, end, rel_tol, false, stats)
-                .map_err(Shot::Model)?;
-            let miss = r.c_d_out - c_out;
-            done.push((c_out, r));
-            if miss.abs() <= 1e-2 * rel_tol * c_out.abs().max(c_floor) {
-                return Err(Shot::Root(c_out));
-            }
-            Ok(miss)
+            let r = integrate_once(cell, streams, length, u, c_c0, end, rel_tol, false, stats)?;
+            Ok((r.c_d_out - c_out, r))
         };
+        let close_enough = |c_out: f64| 1e-2 * rel_tol * c_out.abs().max(c_floor);
         // Secant steps from the outlet with the concentrate at its inlet concentration
         // (c = c_in) and, one fixed-point step on, the outlet that integration gave: the outlet
         // depends only weakly on the concentrate, so they converge in a few integrations.
@@ -856,14 +876,9 @@ pub fn integrate(
                 ))
             })
         };
-        let root = match search(&mut g) {
-            Ok(root) | Err(Shot::Root(root)) => root,
-            Err(Shot::Model(e)) => return Err(e),
-        };
-        if !want_profiles {
-            if let Some((_, r)) = done.into_iter().find(|(c, _)| *c == root) {
-                return Ok(r);
-            }
+        let (root, kept) = outer_search(at, close_enough, search)?;
+        if let Some(r) = kept.filter(|_| !want_profiles) {
+            return Ok(r);
         }
         streams.c_c_in + ratio * (streams.c_d_in - root)
     };

@@ -2,7 +2,7 @@
 //! every output (model.md section 6).
 
 use crate::cell::{Cell, Guess};
-use crate::channel::{integrate, ChannelResult, End, Shot, Stats, Streams};
+use crate::channel::{integrate, outer_search, ChannelResult, End, Shot, Stats, Streams};
 use crate::constants::FARADAY;
 use crate::design::{Design, Drive, FlowArrangement, LengthMode, Options, PatternSide};
 use crate::energy::{capital_recovery_factor, levelised_cost, minimum_work_streams, J_PER_KWH};
@@ -120,16 +120,9 @@ fn run_drive(
             let w = d.channel.width_m;
             let target = cell_current_a;
             let e_in = (2.0 * cell.xi0 * cell.vt * (st.c_c_in / st.c_d_in).ln()).max(0.0);
-            let mut done: Vec<(f64, ChannelResult)> = Vec::new();
-            let mut miss = |u: f64| -> Result<f64, Shot> {
-                let r = integrate(cell, st, l, u, end, opts.rel_tol, false, stats)
-                    .map_err(Shot::Model)?;
-                let m = w * r.current_per_width - target;
-                done.push((u, r));
-                if m.abs() <= 1e-2 * opts.rel_tol * target {
-                    return Err(Shot::Root(u));
-                }
-                Ok(m)
+            let at = |u: f64| {
+                let r = integrate(cell, st, l, u, end, opts.rel_tol, false, stats)?;
+                Ok((w * r.current_per_width - target, r))
             };
             let u_max = 50.0;
             let guess = {
@@ -209,14 +202,9 @@ fn run_drive(
                     ))
                 })
             };
-            let u = match search(&mut miss) {
-                Ok(u) | Err(Shot::Root(u)) => u,
-                Err(Shot::Model(e)) => return Err(e),
-            };
-            if !opts.profiles {
-                if let Some((_, r)) = done.into_iter().find(|(v, _)| *v == u) {
-                    return Ok((u, r));
-                }
+            let (u, kept) = outer_search(at, |_| 1e-2 * opts.rel_tol * target, search)?;
+            if let Some(r) = kept.filter(|_| !opts.profiles) {
+                return Ok((u, r));
             }
             let r = integrate(cell, st, l, u, end, opts.rel_tol, opts.profiles, stats)?;
             Ok((u, r))
