@@ -92,7 +92,8 @@ pub fn erfc(x: f64) -> f64 {
 /// does not halve the residual, is replaced by bisection, so convergence is guaranteed and
 /// at least linear; near the root it is quadratic. Stops when the step is below `x_tol`, or
 /// when the error left after the last Newton step, (f'' / 2 f') step^2 with f'' measured from
-/// the derivatives at the last two Newton iterates, is below `x_tol / 4`, unless
+/// the derivatives at the last two Newton iterates (or from the residual the last step left,
+/// whichever is larger), is below `x_tol / 4`, unless
 /// `kinked(x, next)` says that the step from x to next crosses a kink of `f` (a jump of the
 /// derivative: the curvature measured on one side says nothing of the other). Returns the
 /// root and the number of function calls.
@@ -135,7 +136,12 @@ pub fn newton_bracketed(
         }
         if good {
             if let Some((xp, dfp)) = prev.filter(|p| p.0 != x) {
-                let k = ((dfx - dfp) / (x - xp)).abs() / (2.0 * dfx);
+                // Two measures of f'' / 2f': the change of the derivative over the last step,
+                // and the residual that step left (a Newton step leaves about
+                // (f'' / 2) step^2). The larger one counts: where f'' varies, the derivatives at
+                // two points can agree by chance while the residual shows the curvature.
+                let dx = x - xp;
+                let k = (((dfx - dfp) / dx).abs() / (2.0 * dfx)).max(fx.abs() / (dfx * dx * dx));
                 if k * step * step <= 0.25 * x_tol && !kinked(x, next) {
                     return (next, calls);
                 }

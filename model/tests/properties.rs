@@ -242,3 +242,71 @@ fn current_drive_and_target_mode_over_random_designs() {
         "{found} found, {unreachable} unreachable"
     );
 }
+
+/// Two cases that random runs found, kept as plain tests: a point whose secondary layer
+/// (the AEM) has just passed its onset. The first left the voltage balance off by 3e-6
+/// (a Newton step across the onset kink was accepted on the curvature of the other side); the
+/// second by 1.3e-6 (with overlimiting exponent 2.27 the curvature changes fast past the
+/// onset, and the derivatives at two iterates 0.14 apart agreed by chance: the stop now also
+/// weighs the residual that the last step left).
+#[test]
+fn point_solve_balances_just_past_a_secondary_onset() {
+    let cases = [
+        (
+            RomConstants {
+                onset_voltage: 24.24896203585767,
+                overlimiting_conductance: 0.44616234042587716,
+                overlimiting_exponent: 1.2345155175599691,
+                wavelength_prefactor: 4.808622581362814,
+                wavelength_exponent: 1.1432873406982667,
+                lockin_width: 1.7187188838276157,
+                alpha_0: 0.37756794711816777,
+                alpha_max: 0.15153853397700906,
+                best_open_fraction: 0.8230391009314617,
+                pinning_sharpness: 5.573380534528488,
+                funnel_scale: 4.056780318110456,
+                funnel_exponent: 2.0796854464985732,
+                ..RomConstants::default()
+            },
+            (
+                11.091088278825524,
+                298.79713059383295,
+                2.9189938824458605e-5,
+            ),
+            (0.0007387057626836812, 0.41738638134395656),
+        ),
+        (
+            RomConstants {
+                onset_voltage: 13.975463512930913,
+                overlimiting_conductance: 0.12612705519931872,
+                overlimiting_exponent: 2.269673565279372,
+                wavelength_prefactor: 0.4579715482688194,
+                wavelength_exponent: 1.4653229131943735,
+                lockin_width: 0.4977358893703918,
+                alpha_0: 0.0542405049287563,
+                alpha_max: 0.8256199533892454,
+                best_open_fraction: 0.29763194731489784,
+                pinning_sharpness: 3.9781919575639697,
+                funnel_scale: 3.4583982961453317,
+                funnel_exponent: 2.899328915791061,
+                ..RomConstants::default()
+            },
+            (189.25115247491985, 23.96160071173132, 8.383051174450317e-5),
+            (9.919726923000956e-5, 0.9428719535381745),
+        ),
+    ];
+    for (k, (c_d, c_c, delta), (pitch, f)) in cases {
+        let mut d = Design::demo();
+        d.membranes.pitch_m = pitch;
+        d.membranes.open_fraction = f;
+        let cell = Cell::new(&d, &k);
+        let p = cell.point(delta, delta, c_d, c_c);
+        let mut g = Guess::default();
+        for j in 0..120 {
+            let u = p.e_mem + 0.01 + 0.05 * j as f64;
+            let s = cell.solve(&p, u, &mut g);
+            let back = cell.voltage_of(&p, &s);
+            assert!((back - u).abs() < 1e-6 * u.max(1.0), "{back} vs {u}");
+        }
+    }
+}
