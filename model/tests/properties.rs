@@ -123,28 +123,47 @@ proptest! {
         f in 0.1..1.0f64,
     ) {
         prop_assume!(k.validate().is_ok());
-        let mut d = Design::demo();
-        d.membranes.pitch_m = pitch;
-        d.membranes.open_fraction = f;
-        let cell = Cell::new(&d, &k);
-        let p = cell.point(delta, delta, c_d, c_c);
-        let mut g = Guess::default();
-        let mut last = -1.0;
-        for j in 0..120 {
-            let u = p.e_mem + 0.01 + 0.05 * j as f64;
-            let s = cell.solve(&p, u, &mut g);
-            prop_assert!(s.current_density > last);
-            // The solved point satisfies the voltage balance (to 1e-6 relative: the solve
-            // converges on the layer voltage, and on a plateau of the other layer a tiny
-            // voltage step moves that layer a lot), and both layers carry its current.
-            let back = cell.voltage_of(&p, &s);
-            prop_assert!((back - u).abs() < 1e-6 * u.max(1.0), "{} vs {}", back, u);
-            let i = s.current_density;
-            prop_assert!((p.cem.current(s.v_cem).0 - i).abs() <= 1e-8 * i.max(1e-3));
-            prop_assert!((p.aem.current(s.v_aem).0 - i).abs() <= 1e-8 * i.max(1e-3));
-            last = s.current_density;
-        }
+        let r = sweep_point(&k, (c_d, c_c, delta), (pitch, f));
+        prop_assert!(r.is_ok(), "{}", r.unwrap_err());
     }
+}
+
+/// Solve one point of the demo cell (with `pitch` and open fraction `f`) at 120 cell-pair
+/// voltages from its membrane potential up: the current rises strictly, the solved point
+/// satisfies the voltage balance (to 1e-6 relative: the solve converges on the layer voltage,
+/// and on a plateau of the other layer a tiny voltage step moves that layer a lot), and both
+/// layers carry its current. Err names the first failure.
+fn sweep_point(
+    k: &RomConstants,
+    (c_d, c_c, delta): (f64, f64, f64),
+    (pitch, f): (f64, f64),
+) -> Result<(), String> {
+    let mut d = Design::demo();
+    d.membranes.pitch_m = pitch;
+    d.membranes.open_fraction = f;
+    let cell = Cell::new(&d, k);
+    let p = cell.point(delta, delta, c_d, c_c);
+    let mut g = Guess::default();
+    let mut last = -1.0;
+    for j in 0..120 {
+        let u = p.e_mem + 0.01 + 0.05 * j as f64;
+        let s = cell.solve(&p, u, &mut g);
+        let i = s.current_density;
+        if i <= last {
+            return Err(format!("current {i} at {u} V not above {last}"));
+        }
+        let back = cell.voltage_of(&p, &s);
+        if (back - u).abs() >= 1e-6 * u.max(1.0) {
+            return Err(format!("balance: {back} vs {u}"));
+        }
+        if (p.cem.current(s.v_cem).0 - i).abs() > 1e-8 * i.max(1e-3)
+            || (p.aem.current(s.v_aem).0 - i).abs() > 1e-8 * i.max(1e-3)
+        {
+            return Err(format!("a layer does not carry {i} at {u} V"));
+        }
+        last = i;
+    }
+    Ok(())
 }
 
 /// A random admissible design with every channel filling and membrane property varied.
@@ -295,18 +314,7 @@ fn point_solve_balances_just_past_a_secondary_onset() {
             (9.919726923000956e-5, 0.9428719535381745),
         ),
     ];
-    for (k, (c_d, c_c, delta), (pitch, f)) in cases {
-        let mut d = Design::demo();
-        d.membranes.pitch_m = pitch;
-        d.membranes.open_fraction = f;
-        let cell = Cell::new(&d, &k);
-        let p = cell.point(delta, delta, c_d, c_c);
-        let mut g = Guess::default();
-        for j in 0..120 {
-            let u = p.e_mem + 0.01 + 0.05 * j as f64;
-            let s = cell.solve(&p, u, &mut g);
-            let back = cell.voltage_of(&p, &s);
-            assert!((back - u).abs() < 1e-6 * u.max(1.0), "{back} vs {u}");
-        }
+    for (k, conc, pattern) in cases {
+        sweep_point(&k, conc, pattern).unwrap();
     }
 }
