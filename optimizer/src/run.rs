@@ -460,16 +460,7 @@ impl Run {
             let pts: Vec<Vec<f64>> = if keep {
                 self.archive.objectives()
             } else {
-                let feasible: Vec<Vec<f64>> = self
-                    .population
-                    .iter()
-                    .filter(|e| e.is_feasible())
-                    .map(|e| e.objectives.clone())
-                    .collect();
-                crate::dominance::non_dominated_indices(&feasible)
-                    .into_iter()
-                    .map(|i| feasible[i].clone())
-                    .collect()
+                self.population_front()
             };
             let r = (0..self.num_objectives)
                 .map(|i| {
