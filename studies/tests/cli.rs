@@ -440,6 +440,16 @@ fn read(p: &Path) -> Vec<u8> {
     std::fs::read(p).unwrap()
 }
 
+/// Two run directories hold the same results: front.csv and evaluations.csv, byte for byte.
+fn assert_same_results(a: &Path, b: &Path, context: &str) {
+    for f in ["front.csv", "evaluations.csv"] {
+        assert!(
+            read(&a.join(f)) == read(&b.join(f)),
+            "{f} differs {context}"
+        );
+    }
+}
+
 fn spawn_run(study: &Path, out: &Path, snapshot_seconds: &str) -> std::process::Child {
     Command::new(env!("CARGO_BIN_EXE_stria"))
         .env("STRIA_SNAPSHOT_SECONDS", snapshot_seconds)
@@ -502,12 +512,7 @@ fn kill_and_resume(dir: &Path, study: &Path, evaluations: u64, seed: u64) -> u64
         replays > 0,
         "no resume replayed journalled generations; the test misses the journal"
     );
-    for f in ["front.csv", "evaluations.csv"] {
-        assert!(
-            read(&whole.join(f)) == read(&broken.join(f)),
-            "{f} differs after {kills} kills"
-        );
-    }
+    assert_same_results(&whole, &broken, &format!("after {kills} kills"));
     let summary: serde_json::Value =
         serde_json::from_slice(&read(&broken.join("summary.json"))).unwrap();
     assert_eq!(summary["evaluations"], evaluations);
@@ -567,9 +572,7 @@ fn same_result_with_one_and_two_threads() {
     let (a, b) = (dir.path().join("t1"), dir.path().join("t2"));
     run_to_end(&study, &a, &["--threads", "1"]);
     run_to_end(&study, &b, &["--threads", "2"]);
-    for f in ["front.csv", "evaluations.csv"] {
-        assert!(read(&a.join(f)) == read(&b.join(f)), "{f} differs");
-    }
+    assert_same_results(&a, &b, "between 1 and 2 threads");
 }
 
 #[test]
@@ -760,9 +763,7 @@ fn a_journal_that_does_not_follow_from_the_checkpoint_is_computed_again() {
     // Nothing of the forged line is used: the result is that of a run straight to 200.
     let straight = dir.path().join("straight");
     run_to_end(&study, &straight, &["--max-evals", "200"]);
-    for f in ["front.csv", "evaluations.csv"] {
-        assert!(read(&straight.join(f)) == read(&out.join(f)), "{f} differs");
-    }
+    assert_same_results(&straight, &out, "from a straight run");
 }
 
 #[test]
