@@ -34,6 +34,20 @@ pub const TEMPERATURE_RANGE_K: (f64, f64) = (278.15, 323.15);
 /// (1.3e-5 S/m from the CRC Handbook limiting molar conductivity) is only twice that of pure
 /// water (5.5e-6 S/m at 25 C, from memory), whose own ions the model leaves out.
 pub const FEED_MIN_MOL_M3: f64 = 1e-3;
+/// Highest feed concentration accepted, mol/m^3 (beyond the handbook data of NaCl and KCl).
+pub const FEED_MAX_MOL_M3: f64 = 6000.0;
+/// Margin by which a membrane's counter-ion transport number must exceed the solution's own.
+pub const TRANSPORT_MARGIN: f64 = 0.01;
+
+/// The transport numbers a membrane must exceed (CEM, AEM): the solution's own cation and
+/// anion transport numbers at the feed, plus [`TRANSPORT_MARGIN`] (a membrane no more selective
+/// than the solution does not desalinate).
+pub fn transport_number_minima(w: &crate::design::Water) -> (f64, f64) {
+    let tp =
+        properties(w.salt, w.temperature_k, w.feed_concentration_mol_m3).cation_transport_number;
+    (tp + TRANSPORT_MARGIN, 1.0 - tp + TRANSPORT_MARGIN)
+}
+
 /// Largest price accepted (electricity per kWh, membrane per m^2), in any currency unit.
 pub const PRICE_MAX: f64 = 1e9;
 
@@ -69,14 +83,13 @@ pub fn check_design(d: &Design, o: &Options) -> Result<(), ModelError> {
     input(
         "feed_concentration_mol_m3",
         w.feed_concentration_mol_m3,
-        w.feed_concentration_mol_m3 >= FEED_MIN_MOL_M3 && w.feed_concentration_mol_m3 <= 6000.0,
+        (FEED_MIN_MOL_M3..=FEED_MAX_MOL_M3).contains(&w.feed_concentration_mol_m3),
         "1e-3 to 6000 mol/m^3",
     )?;
     input(
         "concentrate_feed_concentration_mol_m3",
         w.concentrate_feed_concentration_mol_m3,
-        w.concentrate_feed_concentration_mol_m3 >= FEED_MIN_MOL_M3
-            && w.concentrate_feed_concentration_mol_m3 <= 6000.0,
+        (FEED_MIN_MOL_M3..=FEED_MAX_MOL_M3).contains(&w.concentrate_feed_concentration_mol_m3),
         "1e-3 to 6000 mol/m^3",
     )?;
     if let crate::design::Salt::Custom {
@@ -177,18 +190,17 @@ pub fn check_design(d: &Design, o: &Options) -> Result<(), ModelError> {
         }
     }
     let m = &d.membranes;
-    let p = properties(w.salt, w.temperature_k, w.feed_concentration_mol_m3);
-    let tp = p.cation_transport_number;
+    let (cem_min, aem_min) = transport_number_minima(w);
     input(
         "cem_transport_number",
         m.cem_transport_number,
-        m.cem_transport_number > tp + 0.01 && m.cem_transport_number <= 1.0,
+        m.cem_transport_number > cem_min && m.cem_transport_number <= 1.0,
         "above the solution cation transport number (+0.01) up to 1",
     )?;
     input(
         "aem_transport_number",
         m.aem_transport_number,
-        m.aem_transport_number > 1.0 - tp + 0.01 && m.aem_transport_number <= 1.0,
+        m.aem_transport_number > aem_min && m.aem_transport_number <= 1.0,
         "above the solution anion transport number (+0.01) up to 1",
     )?;
     input(

@@ -3,7 +3,7 @@
 use std::path::Path;
 
 use model::{
-    Channel, Design, Drive, Economics, FlowArrangement, LengthMode, Membranes, Operation,
+    validity, Channel, Design, Drive, Economics, FlowArrangement, LengthMode, Membranes, Operation,
     PatternSide, RomConstants, Salt, Spacer, Water,
 };
 use toml_edit::ImDocument;
@@ -176,8 +176,8 @@ fn read_water(r: &mut Reader) -> Result<Water, CliError> {
             )
         })?;
         let mol = x / m * 1000.0;
-        // The model's range (model/src/validity.rs), checked here at the g/L key.
-        if !(1e-3..=6000.0).contains(&mol) {
+        // The model's range, checked here at the g/L key.
+        if !(validity::FEED_MIN_MOL_M3..=validity::FEED_MAX_MOL_M3).contains(&mol) {
             return Err(r.err(
                 "water",
                 key,
@@ -302,26 +302,23 @@ fn float_or(r: &mut Reader, section: &str, key: &str, default: f64) -> Result<f6
 fn read_membranes(r: &mut Reader, water: &Water) -> Result<Membranes, CliError> {
     let cem_t = r.float_req("membranes", "cem_transport_number")?;
     let aem_t = r.float_req("membranes", "aem_transport_number")?;
-    // The model's rule (model/src/validity.rs): a membrane must be more selective than the
-    // solution itself, by 0.01, for its counter-ion.
-    let tp = model::properties::properties(
-        water.salt,
-        water.temperature_k,
-        water.feed_concentration_mol_m3,
-    )
-    .cation_transport_number;
-    for (key, t, solution, ion) in [
-        ("cem_transport_number", cem_t, tp, "cation"),
-        ("aem_transport_number", aem_t, 1.0 - tp, "anion"),
+    // The model's rule, checked here at the key's line: a membrane must be more selective
+    // than the solution itself for its counter-ion.
+    let (cem_min, aem_min) = validity::transport_number_minima(water);
+    for (key, t, min, ion) in [
+        ("cem_transport_number", cem_t, cem_min, "cation"),
+        ("aem_transport_number", aem_t, aem_min, "anion"),
     ] {
-        if t <= solution + 0.01 {
+        if t <= min {
             return Err(r.err(
                 "membranes",
                 key,
                 format!(
-                    "{t} is not above the solution's own {ion} transport number ({solution:.3}) by 0.01"
+                    "{t} is not above the solution's own {ion} transport number ({:.3}) by {}",
+                    min - validity::TRANSPORT_MARGIN,
+                    validity::TRANSPORT_MARGIN
                 ),
-                format!("above {:.3} up to 1 for this salt and temperature", solution + 0.01),
+                format!("above {min:.3} up to 1 for this salt and temperature"),
             ));
         }
     }
