@@ -767,6 +767,64 @@ fn a_journal_that_does_not_follow_from_the_checkpoint_is_computed_again() {
 }
 
 #[test]
+fn a_torn_journal_line_does_not_spoil_the_lines_after_it() {
+    // A kill in the middle of a journal append leaves a line without its newline. The resume
+    // must not append its own lines behind that fragment: they would fuse with it into one
+    // damaged line, and once another line followed, the next resume refused the journal as
+    // damaged (seen once in the kill-and-resume test of a scalarised study).
+    let dir = tempfile::tempdir().unwrap();
+    let study = small_study(dir.path(), "s.toml", 64);
+    let out = dir.path().join("run");
+    run_to_end(&study, &out, &[]);
+    let journal = out.join("journal.jsonl");
+    std::fs::write(&journal, "{\"generation\": 5, \"evalua").unwrap();
+    // Resume with a longer budget and no snapshot (30 s), killed once two generations are
+    // journalled.
+    let mut child = Command::new(env!("CARGO_BIN_EXE_stria"))
+        .env("STRIA_SNAPSHOT_SECONDS", "30")
+        .args([
+            "run",
+            study.to_str().unwrap(),
+            "--out",
+            out.to_str().unwrap(),
+        ])
+        .args(["--max-evals", "100000", "--threads", "1"])
+        .stdin(Stdio::null())
+        .stdout(Stdio::null())
+        .stderr(Stdio::null())
+        .spawn()
+        .unwrap();
+    let t0 = std::time::Instant::now();
+    while std::fs::read_to_string(&journal)
+        .unwrap_or_default()
+        .matches('\n')
+        .count()
+        < 2
+    {
+        assert!(
+            t0.elapsed() < Duration::from_secs(60),
+            "no generations journalled"
+        );
+        std::thread::sleep(Duration::from_millis(2));
+    }
+    child.kill().unwrap();
+    child.wait().unwrap();
+    let o = stria(&[
+        "run",
+        study.to_str().unwrap(),
+        "--out",
+        out.to_str().unwrap(),
+        "--max-evals",
+        "200",
+    ]);
+    assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
+    assert!(stderr(&o).contains("replayed"), "{}", stderr(&o));
+    let straight = dir.path().join("straight");
+    run_to_end(&study, &straight, &["--max-evals", "200"]);
+    assert_same_results(&straight, &out, "from a straight run");
+}
+
+#[test]
 fn a_resume_with_a_lowered_budget_ends_the_replay_where_the_budget_ends() {
     // A run killed with journalled generations (no snapshot but the first), resumed with a
     // budget below what the journal holds: the replay stops at the budget, and the run

@@ -488,6 +488,11 @@ fn resume(rd: &RunDir, study: &Study, fingerprint: &str, csv_cap: u64) -> Result
     };
     if state.pending.is_empty() {
         cut_to_commit(rd, &state)?;
+        // Nothing in the journal is needed (its whole lines are in the snapshot), but it may
+        // end in a line torn by a kill: emptied, so that new lines do not fuse with that
+        // fragment into a damaged line. (With pending lines, the snapshot after the replay
+        // empties it.)
+        write_atomic(&journal, b"").map_err(|e| io_error("write", &journal, e))?;
     }
     Ok(state)
 }
