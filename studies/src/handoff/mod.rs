@@ -70,7 +70,7 @@ pub fn case_inputs(
     // state at mid-length is a solved point, not an interpolation. A product-target design
     // integrates up to its longest length; its profiles are taken from the same channel at the
     // length found (fixed length, at the voltage found), so mid-length is again a grid point.
-    let refit;
+    let at_found_length;
     let profiles_of = if matches!(design.operation.length_mode, LengthMode::Fixed) {
         &eval
     } else {
@@ -80,9 +80,9 @@ pub fn case_inputs(
         fixed.operation.drive = Drive::Voltage {
             cell_pair_voltage_v: eval.inputs.cell_pair_voltage_V,
         };
-        refit = model::evaluate(&fixed, constants, &options)
+        at_found_length = model::evaluate(&fixed, constants, &options)
             .map_err(|e| CliError::runtime(format!("{name}: the model failed: {e}")))?;
-        &refit
+        &at_found_length
     };
     let profiles = profiles_of
         .profiles
