@@ -1,5 +1,6 @@
 //! `stria`: the command line of stria. Parses arguments and dispatches to the library; every
-//! failure becomes one message on stderr and an exit code (0 ok, 1 runtime failure, 2 bad input).
+//! failure becomes one message on stderr and an exit code (0 ok, 1 runtime failure, 2 bad input,
+//! 75 a run paused before its end and resumable: `studies::run::EXIT_PAUSED`).
 
 use std::path::PathBuf;
 use std::process::ExitCode;
@@ -38,7 +39,9 @@ enum Command {
         #[arg(long)]
         profile: bool,
     },
-    /// Run the study's optimisation; running again on the same directory resumes.
+    /// Run the study's optimisation; running again on the same directory resumes. Ctrl-C,
+    /// SIGTERM or SIGHUP pause it at the end of the generation. Exit 0 finished, 75 paused
+    /// (a stop signal or --hours; resumable), 1 runtime failure, 2 bad input.
     Run {
         /// The study file (TOML).
         study: PathBuf,
@@ -92,15 +95,15 @@ enum Command {
     Keys,
 }
 
-fn dispatch(cli: Cli) -> Result<(), CliError> {
+fn dispatch(cli: Cli) -> Result<ExitCode, CliError> {
     match cli.command {
-        Command::Check { study } => studies::check::run(&study),
+        Command::Check { study } => studies::check::run(&study).map(|()| ExitCode::SUCCESS),
         Command::Eval {
             study,
             sets,
             json,
             profile,
-        } => studies::eval::run(&study, &sets, json, profile),
+        } => studies::eval::run(&study, &sets, json, profile).map(|()| ExitCode::SUCCESS),
         Command::Run {
             study,
             out,
@@ -117,18 +120,23 @@ fn dispatch(cli: Cli) -> Result<(), CliError> {
             fresh,
             evaluations_csv_cap: None,
         })
-        .map(|_| ()),
-        Command::Report { dir } => studies::report::run(&dir),
-        Command::Handoff { dir, picks, out } => studies::handoff::run(&dir, &picks, out.as_deref()),
+        .map(|ended| match ended {
+            studies::run::Ended::Finished(_) => ExitCode::SUCCESS,
+            studies::run::Ended::Paused(_) => ExitCode::from(studies::run::EXIT_PAUSED),
+        }),
+        Command::Report { dir } => studies::report::run(&dir).map(|()| ExitCode::SUCCESS),
+        Command::Handoff { dir, picks, out } => {
+            studies::handoff::run(&dir, &picks, out.as_deref()).map(|()| ExitCode::SUCCESS)
+        }
         Command::Fit {
             data,
             study,
             fit,
             out,
-        } => studies::fit::run(&data, &study, &fit, out.as_deref()),
+        } => studies::fit::run(&data, &study, &fit, out.as_deref()).map(|()| ExitCode::SUCCESS),
         Command::Keys => {
             print!("{}", studies::study::keys::reference_markdown());
-            Ok(())
+            Ok(ExitCode::SUCCESS)
         }
     }
 }
@@ -143,7 +151,7 @@ fn main() -> ExitCode {
         }
     };
     match dispatch(cli) {
-        Ok(()) => ExitCode::SUCCESS,
+        Ok(code) => code,
         Err(e) => {
             eprintln!("{e}");
             ExitCode::from(e.exit_code())

@@ -537,7 +537,9 @@ fn killed_runs_resume_to_the_uninterrupted_result() {
         .status();
     let o = child.wait_with_output().unwrap();
     let err = String::from_utf8_lossy(&o.stderr);
-    assert_eq!(o.status.code(), Some(0), "{err}");
+    // 75 when the signal paused the run, 0 when it came after the end.
+    let paused_code = if err.contains("paused") { 75 } else { 0 };
+    assert_eq!(o.status.code(), Some(paused_code), "{err}");
     if err.contains("paused") {
         assert!(err.contains("resume with: stria run"), "{err}");
         let s: serde_json::Value =
@@ -547,6 +549,59 @@ fn killed_runs_resume_to_the_uninterrupted_result() {
     }
     run_to_end(&study, &paused, &["--threads", "2"]);
     assert!(read(&whole.join("front.csv")) == read(&paused.join("front.csv")));
+}
+
+/// Wait until `out`'s evaluations.csv holds data rows (the run is past its set-up and its
+/// stop handler is installed).
+fn wait_for_rows(out: &Path, child: &mut std::process::Child) {
+    for _ in 0..600 {
+        let rows = std::fs::read_to_string(out.join("evaluations.csv"))
+            .map(|t| t.lines().count())
+            .unwrap_or(0);
+        if rows > 1 {
+            return;
+        }
+        assert!(child.try_wait().unwrap().is_none(), "the run ended early");
+        std::thread::sleep(Duration::from_millis(20));
+    }
+    panic!("the run wrote no rows in 12 s");
+}
+
+#[test]
+fn stop_signals_pause_the_run_with_their_own_exit_code() {
+    // SIGTERM (Slurm, systemd, containers) and SIGHUP pause like Ctrl-C: the generation ends,
+    // everything is written, and the exit code is 75 (EX_TEMPFAIL of sysexits.h), not 0.
+    let dir = tempfile::tempdir().unwrap();
+    let study = small_study(dir.path(), "s.toml", 1_000_000);
+    for signal in ["-TERM", "-HUP"] {
+        let out = dir.path().join(&signal[1..]);
+        let mut child = spawn_run(&study, &out, "30");
+        wait_for_rows(&out, &mut child);
+        let sent = Command::new("kill")
+            .args([signal, &child.id().to_string()])
+            .status()
+            .unwrap();
+        assert!(sent.success());
+        let o = child.wait_with_output().unwrap();
+        let err = stderr(&o);
+        assert_eq!(o.status.code(), Some(75), "{signal}: {err}");
+        assert!(err.contains("resume with: stria run"), "{err}");
+        let s: serde_json::Value =
+            serde_json::from_slice(&read(&out.join("summary.json"))).unwrap();
+        assert_eq!(s["finished"], false);
+        assert_eq!(s["stop_reason"], "stopped on request");
+    }
+    // The wall-clock budget pauses the same way.
+    let out = dir.path().join("hours");
+    let o = stria(&[
+        "run",
+        study.to_str().unwrap(),
+        "--out",
+        out.to_str().unwrap(),
+        "--hours",
+        "0.0001",
+    ]);
+    assert_eq!(o.status.code(), Some(75), "{}", stderr(&o));
 }
 
 #[test]

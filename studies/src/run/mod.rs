@@ -56,7 +56,8 @@ pub struct RunOptions {
 pub enum Ended {
     /// The optimiser is done (budget, completed, stalled).
     Finished(StopReason),
-    /// Stopped before the end (Ctrl-C or the wall-clock budget); resumable.
+    /// Stopped before the end (a stop signal or the wall-clock budget); resumable. `stria run`
+    /// exits with [`EXIT_PAUSED`].
     Paused(StopReason),
 }
 
@@ -108,27 +109,37 @@ pub fn default_dir(study: &Path) -> PathBuf {
     PathBuf::from("runs").join(stem)
 }
 
-/// Raised by Ctrl-C; the run loop checks it between generations.
+/// Raised by Ctrl-C, SIGTERM or SIGHUP; the run loop checks it between generations.
 static STOP: AtomicBool = AtomicBool::new(false);
 
-/// Install the Ctrl-C handler once per process. A second Ctrl-C leaves at once; every file is
-/// still whole (atomic writes), and a resume cuts the rows of the unfinished generation.
-fn install_ctrlc() {
+/// Exit code of a run that paused before its end (a stop signal or the `--hours` budget) with
+/// everything written, so a resume continues it: 75, `EX_TEMPFAIL` of BSD's sysexits.h
+/// ("try again later"; common practice for batch schedulers that requeue).
+pub const EXIT_PAUSED: u8 = 75;
+
+/// Install the stop handler once per process: Ctrl-C (SIGINT), SIGTERM (Slurm, systemd and
+/// container runtimes send it before killing) and SIGHUP (a closed terminal) all ask for a
+/// stop at the end of the generation. A second signal leaves at once (exit 130); every file
+/// is still whole (atomic writes), and a resume cuts the rows of the unfinished generation.
+fn install_stop_handler() {
     static ONCE: std::sync::Once = std::sync::Once::new();
     ONCE.call_once(|| {
         let _ = ctrlc::set_handler(|| {
             if STOP.swap(true, Ordering::SeqCst) {
                 std::process::exit(130);
             }
-            eprintln!("\nstopping at the end of this generation (Ctrl-C again to leave at once)");
+            eprintln!(
+                "\nstopping at the end of this generation (a second Ctrl-C or SIGTERM leaves at once)"
+            );
         });
     });
 }
 
 /// Run `stria run`.
 pub fn run(opts: &RunOptions) -> Result<Ended, CliError> {
-    // Installed first, so a Ctrl-C at any moment (even while the study loads) is a clean stop.
-    install_ctrlc();
+    // Installed first, so a stop signal at any moment (even while the study loads) is a clean
+    // stop.
+    install_stop_handler();
     STOP.store(false, Ordering::SeqCst);
     let stop: &AtomicBool = &STOP;
 
