@@ -24,6 +24,7 @@ pub mod interface;
 pub mod numerics;
 pub mod output;
 pub mod properties;
+pub mod scaling;
 pub mod transfer;
 pub mod validity;
 

@@ -4,4 +4,5 @@
 mod handoff_fit;
 mod model_refs;
 mod optimizer_refs;
+mod scaling_refs;
 mod studies_e2e;
