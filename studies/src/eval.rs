@@ -427,7 +427,7 @@ pub fn model_error(study: &Study, e: ModelError) -> CliError {
             format!("the model rejects {value}"),
             allowed,
         ),
-        other => CliError::Runtime(format!("the model could not evaluate the design: {other}")),
+        other => CliError::model("the model could not evaluate the design", other),
     }
 }
 
@@ -444,8 +444,7 @@ pub fn run(path: &Path, sets: &[String], json: bool, profile: bool) -> Result<()
     let e = model::evaluate(&study.baseline, &study.constants, &options)
         .map_err(|e| model_error(&study, e))?;
     if json {
-        let text = serde_json::to_string_pretty(&e)
-            .map_err(|e| CliError::Runtime(format!("JSON: {e}")))?;
+        let text = serde_json::to_string_pretty(&e).map_err(|e| CliError::json("JSON", e))?;
         println!("{text}");
     } else {
         print!("{}", design_sheet(&study, &e));

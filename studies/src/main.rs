@@ -4,6 +4,8 @@
 
 use std::path::PathBuf;
 use std::process::ExitCode;
+use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::Arc;
 
 use clap::{Parser, Subcommand};
 use studies::error::CliError;
@@ -119,6 +121,8 @@ fn dispatch(cli: Cli) -> Result<ExitCode, CliError> {
             hours,
             fresh,
             evaluations_csv_cap: None,
+            // Installed before the study loads, so a stop signal at any moment is a clean stop.
+            stop: Some(stop_flag()),
         })
         .map(|ended| match ended {
             studies::run::Ended::Finished(_) => ExitCode::SUCCESS,
@@ -139,6 +143,25 @@ fn dispatch(cli: Cli) -> Result<ExitCode, CliError> {
             Ok(ExitCode::SUCCESS)
         }
     }
+}
+
+/// Install the stop handler: Ctrl-C (SIGINT), SIGTERM (Slurm, systemd and container runtimes
+/// send it before killing) and SIGHUP (a closed terminal) raise the returned flag, and the run
+/// stops at the end of its generation, resumable. A second signal leaves at once (exit 130);
+/// every file is still whole (atomic writes), and a resume cuts the rows of the unfinished
+/// generation.
+fn stop_flag() -> Arc<AtomicBool> {
+    let stop = Arc::new(AtomicBool::new(false));
+    let flag = Arc::clone(&stop);
+    let _ = ctrlc::set_handler(move || {
+        if flag.swap(true, Ordering::SeqCst) {
+            std::process::exit(130);
+        }
+        eprintln!(
+            "\nstopping at the end of this generation (a second Ctrl-C or SIGTERM leaves at once)"
+        );
+    });
+    stop
 }
 
 fn main() -> ExitCode {

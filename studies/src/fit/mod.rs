@@ -177,8 +177,10 @@ pub fn calibrate(data: &DataSet, study: &Study, keys: &[String]) -> Result<Calib
 
 /// The constants file: a header saying where it came from, then every `RomConstants` key.
 pub fn constants_toml(cal: &Calibration, data_file: &Path) -> Result<String, CliError> {
-    let body = toml::to_string(&cal.result.constants)
-        .map_err(|e| CliError::runtime(format!("constants file: {e}")))?;
+    let body = toml::to_string(&cal.result.constants).map_err(|source| CliError::Toml {
+        context: "constants file".into(),
+        source,
+    })?;
     let mut head = format!(
         "# ROM constants calibrated by `stria fit` from {}\n\
          # Load from a study with [rom] constants_file = \"<this file>\".\n\
@@ -249,7 +251,7 @@ pub fn plot(data: &DataSet, cal: &Calibration) -> Result<String, CliError> {
         "current density (A/m^2)",
         &series,
     )
-    .map_err(CliError::runtime)
+    .map_err(CliError::from)
 }
 
 /// Per-curve residual summary: (curve, points, RMS residual A/m^2, largest |residual|).

@@ -64,7 +64,7 @@ pub fn case_inputs(
         format!("design_{design_id}")
     };
     let eval = model::evaluate(design, constants, &options)
-        .map_err(|e| CliError::runtime(format!("{name}: the model failed: {e}")))?;
+        .map_err(|e| CliError::model(format!("{name}: the model failed"), e))?;
     let length = eval.inputs.length_m;
     // The profiles have a point at every twentieth of the integrated length, so the window's
     // state at mid-length is a solved point, not an interpolation. A product-target design
@@ -81,7 +81,7 @@ pub fn case_inputs(
             cell_pair_voltage_v: eval.inputs.cell_pair_voltage_V,
         };
         at_found_length = model::evaluate(&fixed, constants, &options)
-            .map_err(|e| CliError::runtime(format!("{name}: the model failed: {e}")))?;
+            .map_err(|e| CliError::model(format!("{name}: the model failed"), e))?;
         &at_found_length
     };
     let profiles = profiles_of
@@ -173,7 +173,7 @@ fn layout(card: &CaseCard) -> Result<String, CliError> {
         wavelength_m: card.predictions.vortex_wavelength_m.value,
         wall_m: Some(g.gap_m),
     })
-    .map_err(CliError::runtime)
+    .map_err(CliError::from)
 }
 
 /// The README.txt of a case.
@@ -324,8 +324,8 @@ pub fn run(dir: &Path, picks: &[u64], out: Option<&Path>) -> Result<(), CliError
     for p in &prepared {
         let folder = out.join(&p.folder);
         std::fs::create_dir_all(&folder).map_err(|e| io_error("create", &folder, e))?;
-        let json = serde_json::to_string_pretty(&p.card)
-            .map_err(|e| CliError::runtime(format!("case.json: {e}")))?;
+        let json =
+            serde_json::to_string_pretty(&p.card).map_err(|e| CliError::json("case.json", e))?;
         for (file, bytes) in [
             ("case.json", json.as_bytes()),
             ("layout.svg", p.layout_svg.as_bytes()),

@@ -172,8 +172,7 @@ fn front_figures(run: &RunDir, baseline: Option<&Evaluation>) -> Result<Vec<Figu
                 &clabel,
                 &pts,
                 mark,
-            )
-            .map_err(CliError::runtime)?;
+            )?;
             figs.push(Figure {
                 file: format!("front_{}_vs_{}.svg", ob.key(), oa.key()),
                 caption: format!(
@@ -212,8 +211,7 @@ fn hypervolume_figure(run: &RunDir) -> Result<Option<Figure>, CliError> {
             mark: svg::Mark::Line,
             colour: 1,
         }],
-    )
-    .map_err(CliError::runtime)?;
+    )?;
     Ok(Some(Figure {
         file: "hypervolume.svg".into(),
         caption: "Hypervolume after each generation (history.csv): a flat tail means the search \
@@ -280,8 +278,7 @@ fn design_figures(
             "cell-pair voltage (V)",
             "current density (A/m^2)",
             &iv,
-        )
-        .map_err(CliError::runtime)?,
+        )?,
     });
     // profiles along the channel
     type Pick = fn(&model::Profiles) -> &Vec<f64>;
@@ -338,8 +335,7 @@ fn design_figures(
                  at its own operating point (faint, same colour), and the study's unpatterned \
                  baseline (black)."
             ),
-            svg: svg::xy_chart(title, "distance from the inlet (m)", ylabel, &series)
-                .map_err(CliError::runtime)?,
+            svg: svg::xy_chart(title, "distance from the inlet (m)", ylabel, &series)?,
         });
     }
     // each pattern to scale
@@ -381,8 +377,7 @@ fn design_figures(
                 delta_m: delta,
                 wavelength_m: lv,
                 wall_m: Some(c.design.channel.gap_m),
-            })
-            .map_err(CliError::runtime)?,
+            })?,
         });
     }
     Ok(figs)

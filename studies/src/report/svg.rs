@@ -3,6 +3,7 @@
 
 use plotters::coord::types::RangedCoordf64;
 use plotters::coord::Shift;
+use plotters::drawing::DrawingAreaErrorKind;
 use plotters::prelude::*;
 use plotters::style::HSLColor;
 
@@ -76,8 +77,14 @@ pub fn range(values: impl Iterator<Item = f64>) -> (f64, f64) {
     (lo - pad, hi + pad)
 }
 
-fn err<E: std::fmt::Debug>(e: E) -> String {
-    format!("drawing failed: {e:?}")
+/// A figure that plotters could not draw (the SVG backend writes into a string, so this is a
+/// drawing error, not a file error).
+#[derive(Debug, thiserror::Error)]
+#[error("drawing failed: {0:?}")]
+pub struct FigureError(#[source] DrawingAreaErrorKind<std::io::Error>);
+
+fn err(e: DrawingAreaErrorKind<std::io::Error>) -> FigureError {
+    FigureError(e)
 }
 
 /// The frame all charts share: caption, margins, and both axes with their descriptions and
@@ -89,7 +96,10 @@ fn framed<'a, 'b>(
     yr: (f64, f64),
     x_label: &str,
     y_label: &str,
-) -> Result<ChartContext<'a, SVGBackend<'b>, Cartesian2d<RangedCoordf64, RangedCoordf64>>, String> {
+) -> Result<
+    ChartContext<'a, SVGBackend<'b>, Cartesian2d<RangedCoordf64, RangedCoordf64>>,
+    FigureError,
+> {
     let mut chart = ChartBuilder::on(area)
         .caption(title, ("sans-serif", 18))
         .margin(12)
@@ -115,7 +125,7 @@ pub fn xy_chart(
     x_label: &str,
     y_label: &str,
     series: &[Series],
-) -> Result<String, String> {
+) -> Result<String, FigureError> {
     let xr = range(series.iter().flat_map(|s| s.points.iter().map(|p| p.0)));
     let yr = range(series.iter().flat_map(|s| s.points.iter().map(|p| p.1)));
     let mut buf = String::new();
@@ -167,7 +177,7 @@ pub fn scatter_coloured(
     colour_label: &str,
     points: &[(f64, f64, f64)],
     marked: Option<(f64, f64, &str)>,
-) -> Result<String, String> {
+) -> Result<String, FigureError> {
     let xr = range(points.iter().map(|p| p.0).chain(marked.map(|m| m.0)));
     let yr = range(points.iter().map(|p| p.1).chain(marked.map(|m| m.1)));
     // the colour scale runs over the values themselves (no padding): its ends are the extremes
@@ -343,7 +353,7 @@ fn pattern_chart<'a, 'b>(
     title: &str,
     w: f64,
     hgt: f64,
-) -> Result<Chart<'a, 'b>, String> {
+) -> Result<Chart<'a, 'b>, FigureError> {
     ChartBuilder::on(root)
         .caption(title, ("sans-serif", 16))
         .margin(10)
@@ -354,7 +364,7 @@ fn pattern_chart<'a, 'b>(
 }
 
 /// Draw a [`PatternFigure`] (equal scales on both axes).
-pub fn pattern(fig: &PatternFigure) -> Result<String, String> {
+pub fn pattern(fig: &PatternFigure) -> Result<String, FigureError> {
     let um = 1e6;
     let w = fig.window_m * um;
     // Equal scales on both axes: the canvas height follows the height asked for, then the

@@ -19,6 +19,7 @@ mod progress;
 use std::collections::HashMap;
 use std::path::{Path, PathBuf};
 use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::Arc;
 use std::time::{Duration, Instant};
 
 use optimizer::{Run, StepReport, StopReason};
@@ -49,6 +50,9 @@ pub struct RunOptions {
     pub fresh: bool,
     /// Rows of evaluations.csv kept at most (default [`EVALUATIONS_CSV_CAP`]).
     pub evaluations_csv_cap: Option<u64>,
+    /// Raised (by the binary's Ctrl-C handler) to stop at the end of the current generation;
+    /// the run is then paused and resumable. `None`: nothing stops it early.
+    pub stop: Option<Arc<AtomicBool>>,
 }
 
 /// Why the loop ended, for the final message.
@@ -109,39 +113,15 @@ pub fn default_dir(study: &Path) -> PathBuf {
     PathBuf::from("runs").join(stem)
 }
 
-/// Raised by Ctrl-C, SIGTERM or SIGHUP; the run loop checks it between generations.
-static STOP: AtomicBool = AtomicBool::new(false);
-
 /// Exit code of a run that paused before its end (a stop signal or the `--hours` budget) with
 /// everything written, so a resume continues it: 75, `EX_TEMPFAIL` of BSD's sysexits.h
 /// ("try again later"; common practice for batch schedulers that requeue).
 pub const EXIT_PAUSED: u8 = 75;
 
-/// Install the stop handler once per process: Ctrl-C (SIGINT), SIGTERM (Slurm, systemd and
-/// container runtimes send it before killing) and SIGHUP (a closed terminal) all ask for a
-/// stop at the end of the generation. A second signal leaves at once (exit 130); every file
-/// is still whole (atomic writes), and a resume cuts the rows of the unfinished generation.
-fn install_stop_handler() {
-    static ONCE: std::sync::Once = std::sync::Once::new();
-    ONCE.call_once(|| {
-        let _ = ctrlc::set_handler(|| {
-            if STOP.swap(true, Ordering::SeqCst) {
-                std::process::exit(130);
-            }
-            eprintln!(
-                "\nstopping at the end of this generation (a second Ctrl-C or SIGTERM leaves at once)"
-            );
-        });
-    });
-}
-
 /// Run `stria run`.
 pub fn run(opts: &RunOptions) -> Result<Ended, CliError> {
-    // Installed first, so a stop signal at any moment (even while the study loads) is a clean
-    // stop.
-    install_stop_handler();
-    STOP.store(false, Ordering::SeqCst);
-    let stop: &AtomicBool = &STOP;
+    let never = AtomicBool::new(false);
+    let stop: &AtomicBool = opts.stop.as_deref().unwrap_or(&never);
 
     let (mut study, warnings) = Study::load(&opts.study)?;
     for w in &warnings {
@@ -256,7 +236,7 @@ pub fn run(opts: &RunOptions) -> Result<Ended, CliError> {
     let pool = rayon::ThreadPoolBuilder::new()
         .num_threads(threads)
         .build()
-        .map_err(|e| CliError::Runtime(format!("could not start {threads} worker threads: {e}")))?;
+        .map_err(|source| CliError::Threads { threads, source })?;
     eprintln!(
         "stria run: \"{}\": {} variable(s), {} objective(s), {} constraint(s); {} with seed {}; budget {} evaluations{}; {} thread(s); directory {}",
         study.name,
@@ -416,11 +396,9 @@ fn start(
 fn resume(rd: &RunDir, study: &Study, fingerprint: &str, csv_cap: u64) -> Result<State, CliError> {
     let path = rd.checkpoint();
     let text = std::fs::read_to_string(&path).map_err(|e| io_error("read", &path, e))?;
-    let cp: Checkpoint = serde_json::from_str(&text).map_err(|e| {
-        CliError::Runtime(format!(
-            "{} is damaged ({e}); start afresh with --fresh",
-            path.display()
-        ))
+    let cp: Checkpoint = serde_json::from_str(&text).map_err(|source| CliError::Damaged {
+        path: path.clone(),
+        source,
     })?;
     if cp.version != CHECKPOINT_VERSION {
         return Err(CliError::Runtime(format!(
@@ -450,11 +428,9 @@ fn resume(rd: &RunDir, study: &Study, fingerprint: &str, csv_cap: u64) -> Result
             serde_json::json!(study.optimizer.stall_generations),
         );
     }
-    let run = Run::from_json(&run_value.to_string()).map_err(|e| {
-        CliError::Runtime(format!(
-            "{}: {e}; start afresh with --fresh",
-            path.display()
-        ))
+    let run = Run::from_json(&run_value.to_string()).map_err(|source| CliError::Optimizer {
+        path: path.clone(),
+        source,
     })?;
     // The generations committed to the journal after the snapshot (a journal not yet emptied
     // after a snapshot still holds older ones: skipped).
@@ -615,8 +591,7 @@ fn commit(
         elapsed_s: elapsed,
         outcomes: report.new.clone(),
     };
-    let mut entry =
-        serde_json::to_string(&record).map_err(|e| CliError::Runtime(format!("journal: {e}")))?;
+    let mut entry = serde_json::to_string(&record).map_err(|e| CliError::json("journal", e))?;
     entry.push('\n');
     append_synced(&rd.journal(), entry.as_bytes())
         .map_err(|e| io_error("append to", &rd.journal(), e))?;
@@ -674,8 +649,7 @@ fn write_checkpoint(
         elapsed_s: elapsed,
         run: serde_json::Value::Null,
     };
-    let head =
-        serde_json::to_string(&cp).map_err(|e| CliError::Runtime(format!("checkpoint: {e}")))?;
+    let head = serde_json::to_string(&cp).map_err(|e| CliError::json("checkpoint", e))?;
     let head = head
         .strip_suffix("\"run\":null}")
         .ok_or_else(|| CliError::Runtime("checkpoint: unexpected layout".into()))?;
@@ -728,7 +702,6 @@ fn write_summary(
         "elapsed_s": elapsed,
         "finished": finished,
     });
-    let text = serde_json::to_string_pretty(&summary)
-        .map_err(|e| CliError::Runtime(format!("summary: {e}")))?;
+    let text = serde_json::to_string_pretty(&summary).map_err(|e| CliError::json("summary", e))?;
     write_atomic(&rd.summary(), text.as_bytes()).map_err(|e| io_error("write", &rd.summary(), e))
 }
