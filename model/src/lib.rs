@@ -25,6 +25,7 @@ pub mod numerics;
 pub mod output;
 pub mod properties;
 pub mod scaling;
+pub mod stack;
 pub mod transfer;
 pub mod validity;
 
