@@ -353,6 +353,8 @@ impl Banded {
     }
 
     /// Solve A x = b by Cholesky (A = U^T U), O(n w^2).
+    // Band indices read more plainly than iterator chains here.
+    #[allow(clippy::needless_range_loop)]
     fn solve(mut self, mut b: Vec<f64>) -> Result<Vec<f64>, ModelError> {
         let (n, w) = (self.n, self.w);
         let idx = |i: usize, j: usize| i * (w + 1) + (j - i);
@@ -467,6 +469,7 @@ mod tests {
     }
 
     /// Dense Gaussian elimination with partial pivoting (the test's own solver).
+    #[allow(clippy::needless_range_loop)]
     fn dense_solve(mut a: Vec<Vec<f64>>, mut b: Vec<f64>) -> Vec<f64> {
         let n = b.len();
         for c in 0..n {
