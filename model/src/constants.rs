@@ -283,6 +283,52 @@ pub fn provenance_of(k: &RomConstants) -> Vec<ConstantRow> {
     ]
 }
 
+/// Units in words and meaning of each ROM constant, by its `[rom]` key: (key, unit, meaning).
+/// `stria keys` (docs/study-reference.md), docs/constants.md and `stria fit` print them beside
+/// the values; the relations are in docs/physics.md, section "Interface law".
+pub const ROM_MEANINGS: &[(&str, &str, &str)] = &[
+    ("onset_voltage", "thermal voltages (RT/F, 25.7 mV at 25 C)",
+        "v_c: diffusion-layer voltage at which electroconvection starts; no overlimiting current below it"),
+    ("overlimiting_conductance", "limiting currents per thermal voltage (i_lim per RT/F)",
+        "g: slope di/dv of the overlimiting branch of an unpatterned membrane past onset, in units of its limiting current per thermal voltage (n = 1)"),
+    ("overlimiting_exponent", "dimensionless",
+        "n: shape of the overlimiting branch, i_ec of a plain membrane = i_lim g (v - v_c)^n; 1 is a straight line"),
+    ("wavelength_prefactor", "diffusion-layer thicknesses",
+        "a_lambda: natural vortex wavelength at onset divided by the diffusion-layer thickness delta"),
+    ("wavelength_exponent", "dimensionless",
+        "q: growth of the vortex wavelength with voltage, lambda_v = a_lambda delta (v / v_c)^q"),
+    ("lockin_width", "natural-log units of pitch / wavelength",
+        "sigma: width of the Gaussian lock-in window in ln(pitch / lambda_v); a pattern pins the vortices while its pitch is within about a factor exp(sigma) of their wavelength"),
+    ("alpha_0", "share of membrane area (0-1)",
+        "alpha_0: active-area fraction of an unpatterned membrane under chaotic electroconvection (share of the surface reached by salty fluid)"),
+    ("alpha_max", "share of membrane area (0-1)",
+        "alpha_max: active-area fraction of a perfectly locked-in pattern (never above the open fraction)"),
+    ("best_open_fraction", "share of each pitch (0-1)",
+        "phi*: open fraction at which stripes pin the vortices best"),
+    ("pinning_sharpness", "dimensionless",
+        "kappa_P: how fast the pinning efficiency falls away from phi* (P = 4 f (1 - f) at phi* = 0.5, kappa_P = 2)"),
+    ("funnel_scale", "pitch / diffusion-layer thickness",
+        "s_F: pitch / delta at which funnelling has lowered the limiting current half way from the plain value to the open fraction"),
+    ("funnel_exponent", "dimensionless",
+        "k_F: steepness of the funnelling interpolation in pitch / delta"),
+    ("water_splitting_onset", "thermal voltages (RT/F)",
+        "v_ws: CEM diffusion-layer voltage at which water splitting starts"),
+    ("water_splitting_onset_aem", "thermal voltages (RT/F)",
+        "v_ws,AEM: AEM diffusion-layer voltage at which water splitting starts (earlier than at the CEM)"),
+    ("water_splitting_scale", "thermal voltages (RT/F)",
+        "s_ws: voltage past the water-splitting onset at which H+/OH- carry half of the current"),
+    ("calibrated_voltage_max", "thermal voltages (RT/F)",
+        "v_cal: largest diffusion-layer voltage inside the calibrated range; above it the model warns"),
+];
+
+/// The unit in words and the meaning of the ROM constant `key` (see [`ROM_MEANINGS`]).
+pub fn rom_meaning(key: &str) -> Option<(&'static str, &'static str)> {
+    ROM_MEANINGS
+        .iter()
+        .find(|(k, _, _)| *k == key)
+        .map(|(_, unit, meaning)| (*unit, *meaning))
+}
+
 /// The default ROM constants with their provenance.
 pub fn provenance() -> Vec<ConstantRow> {
     provenance_of(&RomConstants::default())
@@ -300,6 +346,15 @@ mod tests {
             assert!(keys.contains(&k.as_str()), "no provenance row for {k}");
         }
         assert_eq!(keys.len(), json.as_object().unwrap().len());
+    }
+
+    #[test]
+    fn every_field_has_a_meaning() {
+        let json = serde_json::to_value(RomConstants::default()).unwrap();
+        for k in json.as_object().unwrap().keys() {
+            assert!(rom_meaning(k).is_some(), "no ROM_MEANINGS row for {k}");
+        }
+        assert_eq!(ROM_MEANINGS.len(), json.as_object().unwrap().len());
     }
 
     #[test]
