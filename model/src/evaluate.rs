@@ -1,5 +1,5 @@
 //! One evaluation: drive (voltage or current), along-channel integration, and the assembly of
-//! every output (model.md section 6).
+//! every output (docs/physics.md#energy-and-cost; the fields: docs/formats.md#design-sheet-json).
 
 use crate::cell::{Cell, Guess};
 use crate::channel::{integrate, outer_search, ChannelResult, End, Shot, Stats, Streams};

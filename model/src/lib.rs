@@ -39,7 +39,7 @@ pub use output::*;
 /// Study fingerprints include it, so a run is never resumed with a different model.
 pub const MODEL_REVISION: u32 = 6;
 
-/// The safety note that goes with every result of the model (model.md section 9), for the
+/// The safety note that goes with every result of the model (docs/physics.md#safety), for the
 /// README, reports and hand-off cards.
 pub const SAFETY_NOTE: &str = "stria is a screening model: its results guide design and \
 detailed simulation, they do not certify a plant. Product water must meet the local \

@@ -1,5 +1,5 @@
 //! What one evaluation returns. Field names follow the `stria eval --json` schema
-//! (../shared/design/studies.md); serialising an [`Evaluation`] gives that JSON.
+//! (docs/formats.md#design-sheet-json); serialising an [`Evaluation`] gives that JSON.
 
 use serde::{Deserialize, Serialize};
 

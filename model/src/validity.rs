@@ -364,7 +364,7 @@ fn warn(out: &mut Vec<Warning>, quantity: &str, value: f64, bound: f64, message:
     });
 }
 
-/// The validity warnings of one evaluated design (model.md section 8).
+/// The validity warnings of one evaluated design (docs/physics.md#validity).
 pub fn warnings(d: &Design, k: &crate::RomConstants, o: &Observed) -> Vec<Warning> {
     let mut w = Vec::new();
     match d.channel.spacer {

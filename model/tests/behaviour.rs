@@ -1,4 +1,4 @@
-//! Behaviour of the public API: validity warnings (model.md section 8), input errors, the
+//! Behaviour of the public API: validity warnings (docs/physics.md#validity), input errors, the
 //! current-voltage curve, profiles, the JSON schema of `stria eval --json`, and the
 //! convergence of the outlet in the integration tolerance.
 
@@ -203,7 +203,7 @@ fn profile_points_inside_steps_are_on_the_solution() {
 
 #[test]
 fn json_has_the_eval_schema_fields() {
-    // studies.md, `stria eval --json`.
+    // docs/formats.md#design-sheet-json, `stria eval --json`.
     let v = serde_json::to_value(eval(&Design::demo())).unwrap();
     let schema: [(&str, &[&str]); 5] = [
         (
@@ -309,7 +309,7 @@ fn counter_current_and_spacers_evaluate() {
 
 #[test]
 fn counter_current_streams_balance_each_other() {
-    // Conservation (model.md 5): the salt the diluate loses, the concentrate gains:
+    // Conservation (docs/physics.md#along-the-channel): the salt the diluate loses, the concentrate gains:
     // (c_c,out - c_c,in) h_c u_c = (c_in - c_out) h_d u_d. In counter-current flow the
     // concentrate outlet is the shooting's unknown, so the balance holds as closely as the
     // shooting converged (it stops at 1e-2 rel_tol of the outlet).

@@ -68,7 +68,7 @@ fn config() -> ProptestConfig {
 proptest! {
     #![proptest_config(config())]
 
-    /// model.md section 4: the characteristic must stay strictly increasing in v for every
+    /// docs/physics.md#monotonicity: the characteristic must stay strictly increasing in v for every
     /// admissible input, so a voltage has exactly one current.
     #[test]
     fn layer_current_strictly_increasing(
@@ -87,7 +87,7 @@ proptest! {
             let (i, di) = l.current(v);
             prop_assert!(i > last, "not increasing at v = {}: {} -> {}", v, last, i);
             prop_assert!(di > 0.0);
-            // model.md section 4: alpha never exceeds the open fraction.
+            // docs/physics.md#active-area-fraction: alpha never exceeds the open fraction.
             prop_assert!(l.alpha(v) <= f.min(1.0) + 1e-15);
             last = i;
         }
@@ -177,7 +177,7 @@ fn any_design(rng: &mut ChaCha8Rng) -> Design {
     )
 }
 
-/// model.md section 6: energy used never falls below the thermodynamic minimum for the same
+/// docs/physics.md#energy-and-cost: energy used never falls below the thermodynamic minimum for the same
 /// streams (second law), over 10,000 random designs from a seeded generator. Every design
 /// must also evaluate without error.
 #[test]

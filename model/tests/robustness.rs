@@ -1086,7 +1086,7 @@ fn iv_curve_nan_voltage_gives_nan_point() {
 /// growth, lockin_width 10 and wavelength_exponent 0.05: exp(sigma^2 / (2 q^2)) overflowed
 /// in the closed-form lock-in integral. Now the integral is taken in scaled form there; it is
 /// held to a composite Simpson quadrature of the active-area fraction (the integral it
-/// stands for, model.md section 4) on both sides of the switch.
+/// stands for, docs/physics.md#overlimiting-current) on both sides of the switch.
 #[test]
 fn wide_lockin_window_integral_is_finite_and_right() {
     use model::interface::Layer;

@@ -4,7 +4,7 @@ NSGA-II at the same budget (20,000 evaluations, population 100) on ZDT1, ZDT2, Z
 variables) and DTLZ2 (3 objectives, 12 variables), over several seeds.
 
 Hypervolume of both fronts is computed with moocore at the same reference point (1.1 in
-every objective); references.md gives the analytic fronts' values. Wall time: for pymoo its
+every objective); docs/references.md#optimisation gives the analytic fronts' values. Wall time: for pymoo its
 `minimize` call (imports excluded); for stria both the run as the example times it (`main`
 from start to CSV written, the counterpart of `minimize`) and the whole example process as
 this script sees it (spawn and start-up included, which does not favour stria). CPU time
@@ -133,7 +133,7 @@ def main():
         "every generation, archive written.",
         "",
         "Hypervolume by moocore at reference 1.1 in every objective (mean over seeds, min-max "
-        "in brackets); analytic front HV from references.md.",
+        "in brackets); analytic front HV from docs/references.md#optimisation.",
         "",
         "| problem | HV analytic | HV stria lean (final population) | HV stria full (archive) "
         "| HV pymoo (final population) |",

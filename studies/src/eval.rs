@@ -8,7 +8,7 @@ use model::{Drive, Evaluation, LengthMode, ModelError, Options};
 use crate::error::CliError;
 use crate::study::Study;
 
-/// The caution that ends every design sheet and report (model.md section 9).
+/// The caution that ends every design sheet and report (docs/physics.md#safety).
 pub const CAUTION: &str = "Caution: stria is a screening model. Its results guide design and \
 detailed simulation; they do not certify a plant. Product water must meet the local \
 drinking-water rules; ED stacks run at hazardous voltages; electrode reactions make gases \

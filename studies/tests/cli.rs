@@ -289,7 +289,7 @@ fn demos_check_clean() {
     }
 }
 
-/// The field list of `stria eval --json` in studies.md.
+/// The field list of `stria eval --json` (docs/formats.md#design-sheet-json).
 const SCHEMA: &[(&str, &[&str])] = &[
     (
         "inputs",

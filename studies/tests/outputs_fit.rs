@@ -22,7 +22,7 @@ fn quick_study() -> Study {
         .0
 }
 
-/// Thermal voltage RT/F with CODATA 2018 R and F (references.md), written out here so the test
+/// Thermal voltage RT/F with CODATA 2018 R and F (docs/references.md#physical-constants), written out here so the test
 /// does not lean on the model's own constant.
 fn vt(t: f64) -> f64 {
     8.314462618 * t / 96485.33212

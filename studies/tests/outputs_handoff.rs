@@ -8,7 +8,7 @@ use outputs_support as fixture;
 use serde_json::Value;
 use studies::handoff;
 
-// CODATA 2018 (references.md): exact SI 2019 values of R and F, and eps_0.
+// CODATA 2018 (docs/references.md#physical-constants): exact SI 2019 values of R and F, and eps_0.
 const R: f64 = 8.314462618;
 const F: f64 = 96485.33212;
 const EPS0: f64 = 8.8541878128e-12;
@@ -79,7 +79,7 @@ fn check_case(c: &Value, unpatterned: bool) {
         1e-12,
         "coupling",
     );
-    // Peclet U h / D, Schmidt nu / D, Reynolds U d_h / nu with d_h = 2 h (references.md, slits)
+    // Peclet U h / D, Schmidt nu / D, Reynolds U d_h / nu with d_h = 2 h (docs/references.md#hydraulics)
     close(
         num(c, "dimensionless.peclet.value"),
         u * h / d,
@@ -114,7 +114,7 @@ fn check_case(c: &Value, unpatterned: bool) {
     // property inputs against handbook values at the case temperature (16 C, from memory:
     // water viscosity 1.11 mPa s; permittivity 81.6 from the Malmberg and Maryott 1956
     // polynomial; NaCl D by Stokes-Einstein from 1.611e-9 at
-    // 25 C: references.md), wide tolerances
+    // 25 C: docs/references.md#electrolytes), wide tolerances
     close(mu, 1.11e-3, 0.03, "viscosity at 16 C");
     close(eps_r, 81.6, 0.02, "permittivity at 16 C");
     close(
@@ -318,7 +318,7 @@ fn case_cards_recompute_from_published_relations() {
 fn the_coupling_constant_of_aqueous_nacl_at_25_c_is_about_one_half() {
     // From memory: the electroconvection literature uses about 0.5 for aqueous KCl/NaCl; with the
     // salt diffusivity of NaCl it comes out near 0.3, so a wide band. Independently, the same
-    // relation with the reference values of references.md (eps_r 78.4, mu 0.8900 mPa s,
+    // relation with the reference values of docs/references.md#debye-length (eps_r 78.4, mu 0.8900 mPa s,
     // D 1.611e-9 m^2/s, IAPWS and CRC) must agree with the card within 3 %.
     let t = 298.15;
     let p = model::properties::properties(model::Salt::NaCl, t, 10.0);
@@ -326,9 +326,7 @@ fn the_coupling_constant_of_aqueous_nacl_at_25_c_is_about_one_half() {
     let card_value = p.relative_permittivity * EPS0 * vt * vt
         / (p.dynamic_viscosity_pa_s * p.salt_diffusivity_m2_s);
     let reference = 78.4 * EPS0 * vt * vt / (0.8900e-3 * 1.611e-9);
-    eprintln!(
-        "coupling constant, NaCl 25 C: {card_value:.4} (references.md values: {reference:.4})"
-    );
+    eprintln!("coupling constant, NaCl 25 C: {card_value:.4} (handbook values: {reference:.4})");
     close(
         card_value,
         reference,
@@ -424,7 +422,7 @@ fn the_binary_exits_2_with_one_clear_message_for_an_unknown_id() {
 }
 
 /// Peers limit F D c / ((tm - t) delta) from the card's own numbers (Peers, Discuss. Faraday
-/// Soc. 21 (1956); references.md), with t the counter-ion's transport number in solution.
+/// Soc. 21 (1956); docs/references.md#limiting-current-and-membranes), with t the counter-ion's transport number in solution.
 fn peers_from_card(c: &Value) -> f64 {
     let t_plus = num(c, "electrolyte.cation_transport_number");
     let t = if c["membrane"] == "AEM" {

@@ -126,6 +126,62 @@ fn every_cited_docs_file_and_section_exists() {
     );
 }
 
+/// Every `name.md` mentioned in a text, with the path characters before it.
+fn md_mentions(text: &str) -> Vec<String> {
+    let bytes = text.as_bytes();
+    let path_char = |c: u8| c.is_ascii_alphanumeric() || b"-_./".contains(&c);
+    let mut out = Vec::new();
+    let mut i = 0;
+    while let Some(pos) = text[i..].find(".md") {
+        let end = i + pos + 3;
+        let after_ok = bytes.get(end).is_none_or(|c| !c.is_ascii_alphanumeric());
+        let mut start = i + pos;
+        while start > 0 && path_char(bytes[start - 1]) {
+            start -= 1;
+        }
+        if after_ok && start < i + pos {
+            out.push(text[start..end].trim_start_matches('.').to_string());
+        }
+        i = end;
+    }
+    out
+}
+
+#[test]
+fn every_mentioned_markdown_file_is_in_the_repository() {
+    // A citation of a document outside the repository (or of one never written) cannot be
+    // followed by a reader of the repository: every `x.md` named in a source or document
+    // must be a file of the repository (matched by its path's end).
+    let root = root();
+    let mut files = Vec::new();
+    sources(&root, &mut files);
+    let docs: Vec<String> = files
+        .iter()
+        .filter(|f| f.extension().is_some_and(|e| e == "md"))
+        .map(|f| f.strip_prefix(&root).unwrap_or(f).display().to_string())
+        .collect();
+    let mut missing = Vec::new();
+    for f in &files {
+        if f.ends_with("tests/src/docs.rs") {
+            continue;
+        }
+        let text = std::fs::read_to_string(f).unwrap_or_default();
+        for m in md_mentions(&text) {
+            let m = m.trim_start_matches('/');
+            let outside = m.contains("shared/");
+            if outside || !docs.iter().any(|d| d == m || d.ends_with(&format!("/{m}"))) {
+                let rel = f.strip_prefix(&root).unwrap_or(f).display().to_string();
+                missing.push(format!("{rel}: {m}"));
+            }
+        }
+    }
+    assert!(
+        missing.is_empty(),
+        "documents named but not in the repository:\n{}",
+        missing.join("\n")
+    );
+}
+
 #[test]
 fn citation_scan_finds_paths_and_anchors() {
     let c = citations(
@@ -142,6 +198,10 @@ fn citation_scan_finds_paths_and_anchors() {
     assert!(citations("model.md and ../shared/x.md", false).is_empty());
     assert_eq!(citations("[a](references.md#water)", true).len(), 1);
     assert_eq!(slug(" Cell-pair balance"), "cell-pair-balance");
+    assert_eq!(
+        md_mentions("see ../docs/a.md, model.md and x.mdx"),
+        vec!["/docs/a.md", "model.md"]
+    );
     assert_eq!(
         slug(" Checkpoint (checkpoint.json)"),
         "checkpoint-checkpointjson"

@@ -1,5 +1,5 @@
 //! Acceptance tests live in `tests/`; this library holds only the checks of the project's own
-//! documentation (`docs`): every `docs/...md` citation resolves, and docs/constants.md matches
+//! documentation (`docs`): every `docs/*.md` citation resolves, and docs/constants.md matches
 //! the model's constants table.
 
 #[cfg(test)]

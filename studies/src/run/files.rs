@@ -1,4 +1,4 @@
-//! The files of a run directory (layout in CONTRACT.md): names, headers, rows, checkpoint.
+//! The files of a run directory (layout in docs/formats.md#run-directory): names, headers, rows, checkpoint.
 
 use std::collections::HashMap;
 use std::path::{Path, PathBuf};

@@ -2,7 +2,7 @@
 
 use studies::handoff::case;
 
-// CODATA 2018 (references.md).
+// CODATA 2018 (docs/references.md#physical-constants).
 const R: f64 = 8.314462618;
 const F: f64 = 96485.33212;
 const EPS0: f64 = 8.8541878128e-12;
@@ -21,7 +21,7 @@ fn case_card_debye_length_matches_israelachvili() {
     }
 }
 
-/// Thermal voltage RT/F = 25.693 mV at 298.15 K (references.md, computed from CODATA 2018).
+/// Thermal voltage RT/F = 25.693 mV at 298.15 K (docs/references.md#physical-constants, computed from CODATA 2018).
 #[test]
 fn case_card_thermal_voltage() {
     assert!((case::thermal_voltage(298.15) - 0.025693).abs() < 5e-7);
@@ -29,7 +29,7 @@ fn case_card_thermal_voltage() {
 
 /// Electrohydrodynamic coupling constant eps (RT/F)^2 / (mu D) of aqueous NaCl at 25 C: about
 /// 0.5 in the electroconvection literature (from memory, wide tolerance 0.25-1.0); with the
-/// handbook values of references.md (eps_r 78.4, IAPWS; mu 0.8900 mPa s, IAPWS 2008; salt
+/// handbook values of docs/references.md#debye-length (eps_r 78.4, IAPWS; mu 0.8900 mPa s, IAPWS 2008; salt
 /// D 1.611e-9 m^2/s, CRC) the relation gives 0.32, and the model's properties must agree to 3 %.
 #[test]
 fn coupling_constant_of_aqueous_nacl_at_25_c() {

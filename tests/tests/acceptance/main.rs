@@ -1,5 +1,5 @@
 //! stria's acceptance tests: one test binary, one module per area. Every check names the
-//! outside reference it is held to (see ../shared/references.md for the list).
+//! outside reference it is held to (docs/references.md lists them).
 
 mod handoff_fit;
 mod model_refs;

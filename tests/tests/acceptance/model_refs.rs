@@ -1,5 +1,5 @@
 //! Acceptance checks of the physics model against outside references (see
-//! ../shared/references.md). Every check names its source beside it; "from memory" values
+//! docs/references.md). Every check names its source beside it; "from memory" values
 //! carry wide tolerances and say so; "common practice" marks a fact of the trade.
 
 use model::constants::{RomConstants, FARADAY, GAS_CONSTANT, REFERENCE_LAYER_VOLTAGE};
@@ -37,7 +37,7 @@ fn water_properties_match_iapws_and_malmberg() {
 #[test]
 fn nacl_and_kcl_at_25c_match_crc() {
     // CRC Handbook, "Ionic conductivity and diffusion at infinite dilution"; salt diffusivity
-    // and transport number computed from it (references.md).
+    // and transport number computed from it (docs/references.md#electrolytes).
     let n = properties(Salt::NaCl, T25, 1.0);
     assert!(rel(n.salt_diffusivity_m2_s, 1.611e-9) < 1e-3);
     assert!((n.cation_transport_number - 0.396).abs() < 1e-3);
@@ -51,7 +51,7 @@ fn nacl_and_kcl_at_25c_match_crc() {
 
 #[test]
 fn nernst_einstein_consistency_of_sodium_data() {
-    // Consistency (references.md): F^2 D / (R T) for Na+ must give 50.1 S cm2/mol within 0.1 %.
+    // Consistency (docs/references.md#electrolytes): F^2 D / (R T) for Na+ must give 50.1 S cm2/mol within 0.1 %.
     let p = properties(Salt::NaCl, T25, 1.0);
     let lambda = FARADAY * FARADAY * p.cation_diffusivity_m2_s / (GAS_CONSTANT * T25) * 1e4;
     assert!(rel(lambda, 50.1) < 1e-3, "{lambda}");
@@ -121,7 +121,7 @@ fn debye_length_and_thermal_voltage() {
 
 #[test]
 fn slit_pressure_drop_worked_value() {
-    // references.md (computed): h = 0.5 mm, u = 5 cm/s, L = 10 cm, water at 25 C: 213.6 Pa.
+    // docs/references.md#hydraulics (computed): h = 0.5 mm, u = 5 cm/s, L = 10 cm, water at 25 C: 213.6 Pa.
     let dp = slit_pressure_drop(water_viscosity(T25), 0.05, 0.1, 0.5e-3);
     assert!((dp - 213.6).abs() < 0.2, "{dp}");
 }
@@ -180,7 +180,7 @@ fn mean_leveque_constant_recovered_by_integration() {
 
 #[test]
 fn peers_worked_value_and_cem_limits_first() {
-    // references.md (computed from Peers 1956): 10 mM NaCl, delta = 100 um, tm = 1:
+    // docs/references.md#limiting-current-and-membranes (computed from Peers 1956): 10 mM NaCl, delta = 100 um, tm = 1:
     // 25.7 A/m2 at the CEM, 39.2 A/m2 at the AEM.
     let p = properties(Salt::NaCl, T25, 10.0);
     let t = p.cation_transport_number;
@@ -215,7 +215,7 @@ fn interface(pitch: f64, f: f64) -> InterfaceConditions {
 
 #[test]
 fn classic_branch_and_its_inverse() {
-    // Ideal membrane, binary salt (model.md section 4; Nernst film): i/i_lim = 1 - exp(-v/2),
+    // Ideal membrane, binary salt (docs/physics.md#classic-branch; Nernst film): i/i_lim = 1 - exp(-v/2),
     // i.e. v = 2 ln(1/(1 - i/i_lim)), below the onset of electroconvection.
     let k = RomConstants::default();
     let c = interface(1e-4, 1.0);
@@ -319,7 +319,7 @@ fn best_pattern_doubles_interface_current() {
 
 #[test]
 fn cell_level_gain_is_smaller_than_interface_gain() {
-    // model.md section 7: in a whole cell pair the other membrane and the ohmic losses share
+    // docs/constants.md#how-the-rom-defaults-were-chosen: in a whole cell pair the other membrane and the ohmic losses share
     // the voltage, so the gain of the best pattern is smaller than at one interface.
     let k = RomConstants::default();
     let (bt, _, pt, _) = best_pattern(REFERENCE_LAYER_VOLTAGE, &k);
@@ -423,7 +423,7 @@ fn no_water_splitting() -> RomConstants {
 
 #[test]
 fn salt_balance_closes_to_round_off() {
-    // Conservation: (c_in - c_out) Q_d F = xi I with xi = tm_CEM + tm_AEM - 1 (model.md 5).
+    // Conservation: (c_in - c_out) Q_d F = xi I with xi = tm_CEM + tm_AEM - 1 (docs/physics.md#along-the-channel).
     let k = no_water_splitting();
     for flow in [
         model::FlowArrangement::CoCurrent,
@@ -447,7 +447,7 @@ fn salt_balance_closes_to_round_off() {
 
 #[test]
 fn outlet_converges_when_tolerance_is_tightened() {
-    // Numerical check (model.md 5): the outlet must not change by more than 1e-6 relative.
+    // Numerical check (docs/physics.md#along-the-channel): the outlet must not change by more than 1e-6 relative.
     let d = Design::demo();
     let k = RomConstants::default();
     let a = evaluate(&d, &k, &Options::default()).unwrap();
@@ -548,7 +548,7 @@ fn minimum_work_matches_seawater_figures() {
     // Elimelech and Phillip, Science 333 (2011) 712: 1.06 kWh/m3 at 50 % recovery, about 0.76
     // at zero recovery for seawater. The ideal NaCl formula (Mistry and Lienhard 2013) at
     // 35 g/L is about 8 % high because seawater's osmotic coefficient is about 0.92
-    // (references.md): apply it and hold to 3 %.
+    // (docs/references.md#energy-and-water-quality): apply it and hold to 3 %.
     let c = 35_000.0 / 58.443;
     let phi = 0.92;
     let w50 = minimum_work(T25, c, 0.0, 0.5) / J_PER_KWH;
@@ -563,7 +563,7 @@ fn minimum_work_matches_seawater_figures() {
 
 #[test]
 fn minimum_work_matches_brackish_figures() {
-    // references.md (computed, ideal NaCl, 2 g/L to pure water): 0.047 (r -> 0), 0.065
+    // docs/references.md#energy-and-water-quality (computed, ideal NaCl, 2 g/L to pure water): 0.047 (r -> 0), 0.065
     // (r = 0.5), 0.087 (r = 0.75) kWh/m3.
     let c = 2000.0 / 58.443;
     for (r, w) in [(0.0, 0.047), (0.5, 0.065), (0.75, 0.087)] {

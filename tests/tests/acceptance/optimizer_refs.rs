@@ -1,10 +1,10 @@
 //! Acceptance checks of the optimizer crate against published test problems with analytic
 //! fronts, exact hypervolume arithmetic and the moocore reference library.
-//! Sources (see shared/references.md, "Optimisation benchmarks"):
+//! Sources (see docs/references.md#optimisation):
 //! - ZDT1-3: Zitzler, Deb and Thiele, Evol. Comput. 8 (2000) 173;
 //! - DTLZ2: Deb, Thiele, Laumanns and Zitzler (2002);
 //! - NSGA-II and the TNK problem: Deb, Pratap, Agarwal and Meyarivan, IEEE TEC 6 (2002) 182;
-//! - hypervolume of the analytic fronts: the table in references.md;
+//! - hypervolume of the analytic fronts: the table in docs/references.md#optimisation;
 //! - moocore (PyPI) `moocore.hypervolume(points, ref=...)`.
 
 use optimizer::indicators::{hypervolume, igd, igd_plus};
@@ -50,7 +50,7 @@ const ZDT_EVALS: u64 = 20_000;
 #[test]
 fn nsga2_zdt1_reaches_the_analytic_front() {
     // Source: ZDT1 front f2 = 1 - sqrt(f1) (Zitzler, Deb and Thiele 2000); HV at ref
-    // (1.1, 1.1) = 0.876667 (references.md table).
+    // (1.1, 1.1) = 0.876667 (docs/references.md#optimisation).
     let p = Zdt {
         kind: ZdtKind::Zdt1,
         n: 30,
@@ -77,7 +77,7 @@ fn nsga2_zdt1_reaches_the_analytic_front() {
 
 #[test]
 fn nsga2_zdt2_reaches_the_analytic_front() {
-    // Source: ZDT2 front f2 = 1 - f1^2; HV at (1.1, 1.1) = 0.543333 (references.md).
+    // Source: ZDT2 front f2 = 1 - f1^2; HV at (1.1, 1.1) = 0.543333 (docs/references.md#optimisation).
     let p = Zdt {
         kind: ZdtKind::Zdt2,
         n: 30,
@@ -92,7 +92,7 @@ fn nsga2_zdt2_reaches_the_analytic_front() {
 #[test]
 fn nsga2_zdt3_reaches_the_analytic_front() {
     // Source: ZDT3 front, non-dominated pieces of f2 = 1 - sqrt(f1) - f1 sin(10 pi f1);
-    // HV at (1.1, 1.1) = 1.331761 (references.md).
+    // HV at (1.1, 1.1) = 1.331761 (docs/references.md#optimisation).
     let p = Zdt {
         kind: ZdtKind::Zdt3,
         n: 30,
@@ -107,7 +107,7 @@ fn nsga2_zdt3_reaches_the_analytic_front() {
 #[test]
 fn nsga2_dtlz2_reaches_the_unit_sphere() {
     // Source: DTLZ2 front, the unit sphere octant (Deb et al. 2002); HV at (1.1, 1.1, 1.1)
-    // = 1.331 - pi/6 = 0.807401 (references.md). 100 points cannot cover the octant, so the
+    // = 1.331 - pi/6 = 0.807401 (docs/references.md#optimisation). 100 points cannot cover the octant, so the
     // ratio is judged loosely; every point must be near the sphere.
     let p = Dtlz2 { m: 3, n: 12 };
     for seed in [1, 2] {
@@ -195,7 +195,7 @@ fn hypervolume_equals_inclusion_exclusion_on_small_sets() {
 
 #[test]
 fn hypervolume_of_sampled_fronts_approaches_the_table() {
-    // Source: references.md table (ZDT1 0.876667, DTLZ2 0.807401 at ref 1.1); a dense sample
+    // Source: docs/references.md#optimisation table (ZDT1 0.876667, DTLZ2 0.807401 at ref 1.1); a dense sample
     // of the front approaches the exact value from below.
     let z = Zdt {
         kind: ZdtKind::Zdt1,
