@@ -23,6 +23,7 @@ pub mod hydraulics;
 pub mod interface;
 pub mod numerics;
 pub mod output;
+pub mod plant;
 pub mod properties;
 pub mod scaling;
 pub mod stack;
