@@ -2,7 +2,8 @@
 //!
 //! Every ROM field is overridable from a study file (`[rom]` section) or a calibration result
 //! (`stria fit` writes a TOML file of these keys). [`provenance`] gives each default with
-//! its source; [`PHYSICAL`] lists the physical constants.
+//! its source; [`PHYSICAL`] lists the physical constants; [`priors`] gives the prior of every
+//! uncertain ROM constant (distribution, range, provenance) for uncertainty studies.
 //!
 //! # How the defaults were chosen
 //! Two facts of the trade fix the scale (common practice, no source): under chaotic
@@ -334,6 +335,183 @@ pub fn provenance() -> Vec<ConstantRow> {
     provenance_of(&RomConstants::default())
 }
 
+/// Shape of a prior distribution. Bounds are in the constant's unit (see [`ConstantRow`]).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+#[serde(tag = "kind", rename_all = "snake_case")]
+pub enum Distribution {
+    /// Uniform on [lower, upper].
+    Uniform {
+        /// Lower bound.
+        lower: f64,
+        /// Upper bound.
+        upper: f64,
+    },
+    /// Uniform in ln(x) on [lower, upper] (0 < lower < upper).
+    LogUniform {
+        /// Lower bound.
+        lower: f64,
+        /// Upper bound.
+        upper: f64,
+    },
+    /// Normal of `mean` and standard deviation `sd`, truncated to [lower, upper] (the
+    /// constant's admissible or physical range).
+    Normal {
+        /// Mean (of the untruncated normal).
+        mean: f64,
+        /// Standard deviation (of the untruncated normal).
+        sd: f64,
+        /// Lower truncation bound.
+        lower: f64,
+        /// Upper truncation bound.
+        upper: f64,
+    },
+}
+
+/// Standard normal cumulative distribution function.
+fn normal_cdf(z: f64) -> f64 {
+    0.5 * crate::numerics::erfc(-z / std::f64::consts::SQRT_2)
+}
+
+impl Distribution {
+    /// The support [lower, upper].
+    pub fn support(&self) -> (f64, f64) {
+        match *self {
+            Distribution::Uniform { lower, upper }
+            | Distribution::LogUniform { lower, upper }
+            | Distribution::Normal { lower, upper, .. } => (lower, upper),
+        }
+    }
+
+    /// The value at cumulative probability `u` in [0, 1] (inverse CDF), so that a uniform
+    /// sample u gives a sample of the prior. The truncated normal is inverted by bisection on
+    /// its CDF to 1e-12 of its support.
+    pub fn quantile(&self, u: f64) -> f64 {
+        let u = u.clamp(0.0, 1.0);
+        match *self {
+            Distribution::Uniform { lower, upper } => lower + u * (upper - lower),
+            Distribution::LogUniform { lower, upper } => {
+                (lower.ln() + u * (upper.ln() - lower.ln())).exp()
+            }
+            Distribution::Normal {
+                mean,
+                sd,
+                lower,
+                upper,
+            } => {
+                if u == 0.0 || u == 1.0 {
+                    return if u == 0.0 { lower } else { upper };
+                }
+                let (pa, pb) = (
+                    normal_cdf((lower - mean) / sd),
+                    normal_cdf((upper - mean) / sd),
+                );
+                let target = pa + u * (pb - pa);
+                let (mut a, mut b) = (lower, upper);
+                while b - a > 1e-12 * (upper - lower) {
+                    let m = 0.5 * (a + b);
+                    if normal_cdf((m - mean) / sd) < target {
+                        a = m;
+                    } else {
+                        b = m;
+                    }
+                }
+                0.5 * (a + b)
+            }
+        }
+    }
+
+    /// Whether `x` lies in the support.
+    pub fn contains(&self, x: f64) -> bool {
+        let (a, b) = self.support();
+        x >= a && x <= b
+    }
+}
+
+/// The prior of one uncertain constant: what a study or an uncertainty analysis draws it from.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct Prior {
+    /// Key of the constant in a study file's `[rom]` section (a field of [`RomConstants`]).
+    pub key: &'static str,
+    /// Unit of the bounds ("-" dimensionless, "V_T" thermal units).
+    pub unit: &'static str,
+    /// The distribution.
+    pub distribution: Distribution,
+    /// Where the centre (today's default) comes from: the constant's provenance row.
+    pub centre_source: &'static str,
+    /// Where the range and the shape come from: a source, "from memory" or "common practice".
+    pub range_source: &'static str,
+}
+
+/// ROM constants that are not uncertain physics and so carry no prior: each with the reason.
+pub const WITHOUT_PRIOR: [(&str, &str); 1] = [(
+    "calibrated_voltage_max",
+    "a validity bound of the model (where it warns), not a physical quantity",
+)];
+
+/// The prior of every uncertain ROM constant, centred on today's default (the range's
+/// arithmetic centre for a uniform prior, its geometric centre for a log-uniform one, the
+/// mean of a normal) unless the range source says otherwise. Keys are the `[rom]` keys; every
+/// field of [`RomConstants`] has one except those in [`WITHOUT_PRIOR`]. Every support lies
+/// inside the admissible range of [`RomConstants::validate`].
+pub fn priors() -> Vec<Prior> {
+    use Distribution::*;
+    let rows = provenance();
+    let source = |key: &str| {
+        rows.iter()
+            .find(|r| r.key == key)
+            .map(|r| r.source)
+            .unwrap_or("")
+    };
+    let unit = |key: &str| {
+        rows.iter()
+            .find(|r| r.key == key)
+            .map(|r| r.unit)
+            .unwrap_or("-")
+    };
+    let table: Vec<(&'static str, Distribution, &'static str)> = vec![
+        ("onset_voltage", Uniform { lower: 10.0, upper: 30.0 },
+            "from memory: linear-stability and direct simulations put the onset at 10-30 V_T (Rubinstein and Zaltzman 2000; Zaltzman and Rubinstein 2007); uniform over that band"),
+        ("overlimiting_conductance", LogUniform { lower: 0.025, upper: 0.1 },
+            "from memory: overlimiting branches reach 2-3 i_lim some 40 V_T past onset (Rubinstein et al. 2008), i.e. g from about 0.025 to 0.05 per V_T on a plain membrane; widened by the same factor above the default to keep it the geometric centre"),
+        ("overlimiting_exponent", Normal { mean: 1.0, sd: 0.25, lower: 1.0, upper: 3.0 },
+            "common practice: measured overlimiting branches are near linear; a half-normal above n = 1 (sd 0.25) allows the mild upward curvature some curves show"),
+        ("wavelength_prefactor", LogUniform { lower: 1.0 / 3.0, upper: 3.0 },
+            "from memory: published critical wavelengths of electroconvection at onset span about one to a few layer thicknesses (Zaltzman and Rubinstein 2007 marginal-stability curves; Balster et al. 2007 find 50-200 % of delta most effective); log-uniform from delta/3 to 3 delta"),
+        ("wavelength_exponent", Uniform { lower: 1.0 / 3.0, upper: 1.0 },
+            "from memory: Kwak et al. 2013 give 2/3 from (V^2/U)^(1/3); the exponent is measured over less than a decade of V, +-1/3 allowed"),
+        ("lockin_width", LogUniform { lower: 0.25, upper: 1.0 },
+            "common practice: a pattern tolerates roughly +-30 % to +-100 % pitch mismatch; a factor 2 either way of the default"),
+        ("alpha_0", Uniform { lower: 0.08, upper: 0.22 },
+            "common practice: 'about 15 %' of an unpatterned membrane active; read as 8-22 %"),
+        ("alpha_max", Uniform { lower: 0.25, upper: 0.47 },
+            "tuned (this crate) to the twice-as-fast fact of the trade; the range keeps the interface gain of the best pattern within roughly 1.5-2.5x"),
+        ("best_open_fraction", Uniform { lower: 0.3, upper: 0.7 },
+            "from memory: pattern studies use open fractions from about 0.3 to 0.7 with similar success"),
+        ("pinning_sharpness", LogUniform { lower: 1.0, upper: 4.0 },
+            "choice of this crate, no source: a factor 2 either way of the default"),
+        ("funnel_scale", LogUniform { lower: 3.0, upper: 6.75 },
+            "computed: the small-pitch slope of the exact constriction matches s_F from about 3 (f = 0.2) to about 7 (f = 0.8); log-uniform with the default at its geometric centre"),
+        ("funnel_exponent", Normal { mean: 1.0, sd: 0.2, lower: 0.5, upper: 2.0 },
+            "computed: the constriction deficit is linear in pitch/delta for pitch << delta (n = 1); sd 0.2 for the shape of the transition"),
+        ("water_splitting_onset", Uniform { lower: 40.0, upper: 80.0 },
+            "from memory: CEMs split water well into the overlimiting range (Nikonenko et al. 2014); +-20 V_T"),
+        ("water_splitting_onset_aem", Uniform { lower: 20.0, upper: 50.0 },
+            "from memory: AEMs split water earlier (Nikonenko et al. 2014); +-15 V_T"),
+        ("water_splitting_scale", LogUniform { lower: 10.0, upper: 40.0 },
+            "from memory: current efficiency falls over some tens of V_T past onset; a factor 2 either way"),
+    ];
+    table
+        .into_iter()
+        .map(|(key, distribution, range_source)| Prior {
+            key,
+            unit: unit(key),
+            distribution,
+            centre_source: source(key),
+            range_source,
+        })
+        .collect()
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -355,6 +533,82 @@ mod tests {
             assert!(rom_meaning(k).is_some(), "no ROM_MEANINGS row for {k}");
         }
         assert_eq!(ROM_MEANINGS.len(), json.as_object().unwrap().len());
+    }
+
+    #[test]
+    fn every_uncertain_constant_has_a_prior_centred_on_its_default() {
+        let k = serde_json::to_value(RomConstants::default()).unwrap();
+        let k = k.as_object().unwrap();
+        let priors = priors();
+        for key in k.keys() {
+            let n = priors.iter().filter(|p| p.key == key).count();
+            let exempt = WITHOUT_PRIOR.iter().any(|(w, _)| w == key);
+            assert_eq!(n, usize::from(!exempt), "{key}: {n} priors");
+        }
+        for p in &priors {
+            let default = k[p.key].as_f64().unwrap();
+            let centre = match p.distribution {
+                Distribution::Uniform { lower, upper } => 0.5 * (lower + upper),
+                Distribution::LogUniform { lower, upper } => (lower * upper).sqrt(),
+                Distribution::Normal { mean, .. } => mean,
+            };
+            assert!(
+                (centre / default - 1.0).abs() < 1e-9,
+                "{}: centre {centre} vs default {default}",
+                p.key
+            );
+            assert!(
+                !p.centre_source.is_empty() && !p.range_source.is_empty(),
+                "{}",
+                p.key
+            );
+            // Both ends of the support are admissible values.
+            let (lo, hi) = p.distribution.support();
+            assert!(lo < hi, "{}", p.key);
+            for x in [lo, hi] {
+                let mut v = serde_json::to_value(RomConstants::default()).unwrap();
+                v[p.key] = serde_json::Value::from(x);
+                let c: RomConstants = serde_json::from_value(v).unwrap();
+                c.validate()
+                    .unwrap_or_else(|e| panic!("{}: {x}: {e}", p.key));
+            }
+        }
+    }
+
+    #[test]
+    fn quantiles_invert_the_distributions() {
+        let u = Distribution::Uniform {
+            lower: 2.0,
+            upper: 4.0,
+        };
+        assert_eq!(u.quantile(0.25), 2.5);
+        let l = Distribution::LogUniform {
+            lower: 1.0,
+            upper: 100.0,
+        };
+        assert!((l.quantile(0.5) - 10.0).abs() < 1e-12);
+        // Truncated normal: the median of a symmetric truncation is the mean; the 0.8413
+        // quantile of an untruncated (very wide) one is mean + sd (Phi(1) = 0.841345, tables).
+        let n = Distribution::Normal {
+            mean: 1.0,
+            sd: 0.5,
+            lower: 0.0,
+            upper: 2.0,
+        };
+        assert!((n.quantile(0.5) - 1.0).abs() < 1e-9);
+        let w = Distribution::Normal {
+            mean: 1.0,
+            sd: 0.5,
+            lower: -20.0,
+            upper: 20.0,
+        };
+        assert!((w.quantile(0.841_345) - 1.5).abs() < 1e-5);
+        for d in [u, l, n] {
+            let (lo, hi) = d.support();
+            assert_eq!(d.quantile(0.0), lo);
+            assert!((d.quantile(1.0) - hi).abs() < 1e-9 * hi.abs());
+            assert!(d.contains(d.quantile(0.3)));
+        }
     }
 
     #[test]

@@ -5,7 +5,7 @@
 
 use std::path::{Path, PathBuf};
 
-use model::constants::{provenance, rom_meaning, RomConstants, PHYSICAL};
+use model::constants::{provenance, rom_meaning, Distribution, RomConstants, PHYSICAL};
 use model::properties::ionic_data;
 use model::validity;
 use model::Salt;
@@ -271,6 +271,51 @@ fn constants_markdown() -> String {
             admissible(r.key),
             r.source
         ));
+    }
+    s.push_str(
+        "\n## Priors of the ROM constants\n\nWhat an uncertainty or sensitivity study draws each \
+         uncertain ROM constant from (`model::constants::priors()`), centred on its default \
+         (arithmetic centre of a uniform prior, geometric centre of a log-uniform one, mean of a \
+         normal, which is truncated to the range shown). The default's source is in the table \
+         above.\n\n\
+         | key | prior | source of the range |\n|---|---|---|\n",
+    );
+    let priors = model::constants::priors();
+    for r in provenance() {
+        let (prior, why) = match priors.iter().find(|p| p.key == r.key) {
+            Some(p) => (
+                match p.distribution {
+                    Distribution::Uniform { lower, upper } => {
+                        format!("uniform, {} to {}", shown(lower), shown(upper))
+                    }
+                    Distribution::LogUniform { lower, upper } => {
+                        format!("log-uniform, {} to {}", shown(lower), shown(upper))
+                    }
+                    Distribution::Normal {
+                        mean,
+                        sd,
+                        lower,
+                        upper,
+                    } => format!(
+                        "normal, mean {} sd {}, {} to {}",
+                        shown(mean),
+                        shown(sd),
+                        shown(lower),
+                        shown(upper)
+                    ),
+                },
+                p.range_source,
+            ),
+            None => (
+                "none".to_string(),
+                model::constants::WITHOUT_PRIOR
+                    .iter()
+                    .find(|(k, _)| *k == r.key)
+                    .map(|(_, why)| *why)
+                    .unwrap_or(""),
+            ),
+        };
+        s.push_str(&format!("| `{}` | {} | {} |\n", r.key, prior, why));
     }
     s.push_str(
         "\n## Salt data\n\nAt 25 C, infinite dilution (`model::properties::ionic_data`); \
