@@ -175,6 +175,12 @@ pub fn calibrate(data: &DataSet, study: &Study, keys: &[String]) -> Result<Calib
     })
 }
 
+/// The unit of a ROM constant in words (docs/constants.md#rom-constants): the onset voltage in
+/// thermal voltages, the overlimiting conductance in limiting currents per thermal voltage.
+fn unit_of(key: &str) -> &'static str {
+    model::constants::rom_meaning(key).map_or("-", |(unit, _)| unit)
+}
+
 /// The constants file: a header saying where it came from, then every `RomConstants` key.
 pub fn constants_toml(cal: &Calibration, data_file: &Path) -> Result<String, CliError> {
     let body = toml::to_string(&cal.result.constants).map_err(|source| CliError::Toml {
@@ -191,9 +197,10 @@ pub fn constants_toml(cal: &Calibration, data_file: &Path) -> Result<String, Cli
     );
     for (k, v, s) in &cal.result.parameters {
         head.push_str(&format!(
-            "# fitted: {k} = {} +- {} (one sigma)\n",
+            "# fitted: {k} = {} +- {} (one sigma; unit: {})\n",
             svg::fmt_num(*v),
-            svg::fmt_num(*s)
+            svg::fmt_num(*s),
+            unit_of(k)
         ));
     }
     head.push_str(
@@ -306,11 +313,15 @@ pub fn run(
     for (k, v, s) in &r.parameters {
         let start = solve::get(&cal.start, k).unwrap_or(f64::NAN);
         println!(
-            "  {k:<26} {:>10} -> {:>10} +- {}",
+            "  {k:<26} {:>10} -> {:>10} +- {}  {}",
             svg::fmt_num(start),
             svg::fmt_num(*v),
-            svg::fmt_num(*s)
+            svg::fmt_num(*s),
+            unit_of(k)
         );
+        if let Some((_, meaning)) = model::constants::rom_meaning(k) {
+            println!("      {meaning}");
+        }
     }
     for k in &r.at_bound {
         println!(

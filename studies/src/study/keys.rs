@@ -449,16 +449,12 @@ pub fn reference_markdown() -> String {
             ));
         }
         if *section == "rom" {
-            let rows = model::constants::provenance();
             for (key, _) in rom_keys() {
-                let (symbol, unit) = rows
-                    .iter()
-                    .find(|r| r.key == key)
-                    .map(|r| (r.symbol, r.unit))
-                    .unwrap_or(("", "-"));
+                let (unit, meaning) = model::constants::rom_meaning(&key).unwrap_or(("-", ""));
                 out.push_str(&format!(
-                    "| `{key}` | number | {unit} | the model's value | {} | | ROM constant {symbol}; default and source in the model's constants table (`stria check` prints the values in force). |\n",
-                    rom_allowed(&key)
+                    "| `{key}` | number | {unit} | the model's value | {} | | ROM constant {}. Default and source: docs/constants.md#rom-constants (`stria check` prints the values in force). |\n",
+                    rom_allowed(&key),
+                    md_escape(meaning)
                 ));
             }
         }
