@@ -660,7 +660,7 @@ mod tests {
 
     #[test]
     fn lean_runs_search_exactly_as_full_runs() {
-        // Source: determinism requirement (optimizer design): archive upkeep and hypervolume
+        // Source: determinism rule (DEVELOPERS.md, "The optimizer"): archive upkeep and hypervolume
         // draw no random number, so switching them off leaves the population bit for bit the
         // same. Two objectives (ZDT1), three (DTLZ2, the sorted-sweep archive path) and a
         // constrained problem (TNK, Deb et al. 2002).

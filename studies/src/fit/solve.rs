@@ -509,7 +509,7 @@ mod tests {
     use super::*;
 
     /// A stand-in forward model with the ROM's shape for an unpatterned surface:
-    /// i = i_lim (1 - exp(-v/2)) + i_lim g max(0, v - v_c) (model design section 4).
+    /// i = i_lim (1 - exp(-v/2)) + i_lim g max(0, v - v_c) (docs/physics.md#overlimiting-current).
     fn toy(v: f64, c: &RomConstants) -> Predicted {
         let ilim = 20.0;
         let ec = if v > c.onset_voltage {

@@ -292,7 +292,7 @@ pub struct CaseCard {
     pub caution: &'static str,
 }
 
-/// The screening-model caution (model design, section 9).
+/// The screening-model caution (docs/physics.md#safety).
 pub const CAUTION: &str = "stria is a screening model: its results guide design and detailed \
 simulation, they do not certify a plant. Product water must meet the local drinking-water rules; \
 ED stacks run at hazardous voltages; electrode reactions make gases (hydrogen, chlorine, oxygen) \

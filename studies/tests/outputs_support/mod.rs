@@ -1,4 +1,4 @@
-//! A run directory in the format of the contract (study.toml, front.csv, history.csv,
+//! A run directory in the format of docs/formats.md#run-directory (study.toml, front.csv, history.csv,
 //! summary.json), made by evaluating a few designs of the demo study with the model. Shared by
 //! the report and hand-off tests (`mod outputs_support;`); it has no tests of its own.
 #![allow(dead_code)]

@@ -333,7 +333,7 @@ impl Problem for Flaky {
 
 #[test]
 fn failed_evaluations_are_recorded_and_never_reach_the_front() {
-    // Source: the problem contract (optimizer design): a failed design is infeasible with a
+    // Source: the `Problem` contract (DEVELOPERS.md, "The optimizer"): a failed design is infeasible with a
     // reason, never NaN in a front, never a crash; the rest of the ZDT1 front is still found.
     let config = RunConfig::new(Algorithm::Nsga2(Nsga2Config::default()), 9, 6000);
     let mut run = Run::new(config, &Flaky).unwrap();
@@ -422,7 +422,7 @@ fn resume_equals_uninterrupted(config: RunConfig, p: &dyn Problem, before: usize
 
 #[test]
 fn resume_from_checkpoint_equals_uninterrupted_run() {
-    // Source: checkpoint requirement (optimizer design); NSGA-II, scalarised and screening.
+    // Source: checkpoint rule (DEVELOPERS.md, "The optimizer"); NSGA-II, scalarised and screening.
     let z = Zdt {
         kind: ZdtKind::Zdt1,
         n: 30,
@@ -606,7 +606,7 @@ fn screening_evaluates_the_whole_design_in_batches() {
 
 #[test]
 fn stop_flag_deadline_and_stall_end_a_run() {
-    // Source: termination requirements (optimizer design).
+    // Source: termination rules (`optimizer::run`, stop flag, deadline, stall).
     let p = Zdt {
         kind: ZdtKind::Zdt1,
         n: 30,
