@@ -6,6 +6,7 @@
 #![deny(missing_docs)]
 #![allow(non_snake_case)] // unit suffixes such as `_V` follow the study-file keys
 
+pub mod campaign;
 pub mod check;
 pub mod error;
 pub mod eval;

@@ -93,8 +93,68 @@ enum Command {
         #[arg(long)]
         out: Option<PathBuf>,
     },
+    /// Many studies from one campaign file (a base study and its scenarios), run on this
+    /// machine or as a Slurm job array; `status` and `collect` follow them.
+    #[command(args_conflicts_with_subcommands = true, subcommand_negates_reqs = true)]
+    Campaign {
+        /// The campaign file (TOML).
+        #[arg(required = true)]
+        file: Option<PathBuf>,
+        /// The campaign directory (one run directory a scenario).
+        #[arg(long, required = true)]
+        out: Option<PathBuf>,
+        /// Submit a Slurm job array (one task a scenario) instead of running here.
+        #[arg(long)]
+        slurm: bool,
+        /// Write the Slurm script (DIR/slurm/campaign.sbatch) without submitting it.
+        #[arg(long = "slurm-script-only")]
+        slurm_script_only: bool,
+        /// Slurm partition (overrides [slurm] partition).
+        #[arg(long)]
+        partition: Option<String>,
+        /// Slurm account (overrides [slurm] account).
+        #[arg(long)]
+        account: Option<String>,
+        /// Slurm time limit of each task, e.g. 04:00:00 (overrides [slurm] time).
+        #[arg(long)]
+        time: Option<String>,
+        /// Slurm CPUs of each task, also its thread count (overrides [slurm] cpus_per_task).
+        #[arg(long = "cpus-per-task")]
+        cpus_per_task: Option<usize>,
+        /// Scenarios run at once here (overrides [local] parallel).
+        #[arg(long)]
+        parallel: Option<usize>,
+        /// Threads of each scenario run here (overrides [local] threads_per_scenario).
+        #[arg(long = "threads-per-scenario")]
+        threads_per_scenario: Option<usize>,
+        #[command(subcommand)]
+        action: Option<CampaignAction>,
+    },
     /// Print the reference of every study-file key (Markdown: docs/study-reference.md).
     Keys,
+}
+
+/// What `stria campaign` does besides running a campaign file.
+#[derive(Subcommand, Debug)]
+enum CampaignAction {
+    /// Each scenario: done, running, paused, failed or not started.
+    Status {
+        /// The campaign directory.
+        dir: PathBuf,
+    },
+    /// campaign.csv and campaign.html comparing the scenarios' results.
+    Collect {
+        /// The campaign directory.
+        dir: PathBuf,
+    },
+}
+
+/// `stria campaign FILE --out DIR`; a stop signal is passed on to the scenarios' runs, which
+/// pause at the end of their generation.
+fn campaign(opts: studies::campaign::CampaignOptions) -> Result<ExitCode, CliError> {
+    let stop = stop_flag();
+    let code = studies::campaign::run(&opts, &stop)?;
+    Ok(ExitCode::from(code.clamp(0, 255) as u8))
 }
 
 fn dispatch(cli: Cli) -> Result<ExitCode, CliError> {
@@ -138,6 +198,38 @@ fn dispatch(cli: Cli) -> Result<ExitCode, CliError> {
             fit,
             out,
         } => studies::fit::run(&data, &study, &fit, out.as_deref()).map(|()| ExitCode::SUCCESS),
+        Command::Campaign {
+            file,
+            out,
+            slurm,
+            slurm_script_only,
+            partition,
+            account,
+            time,
+            cpus_per_task,
+            parallel,
+            threads_per_scenario,
+            action,
+        } => match action {
+            Some(CampaignAction::Status { dir }) => {
+                studies::campaign::status::run_status(&dir).map(|()| ExitCode::SUCCESS)
+            }
+            Some(CampaignAction::Collect { dir }) => {
+                studies::campaign::status::run_collect(&dir).map(|()| ExitCode::SUCCESS)
+            }
+            None => campaign(studies::campaign::CampaignOptions {
+                file: file.unwrap_or_default(),
+                out: out.unwrap_or_default(),
+                slurm,
+                slurm_script_only,
+                partition,
+                account,
+                time,
+                cpus_per_task,
+                parallel,
+                threads_per_scenario,
+            }),
+        },
         Command::Keys => {
             print!("{}", studies::study::keys::reference_markdown());
             Ok(ExitCode::SUCCESS)
