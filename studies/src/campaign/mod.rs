@@ -376,7 +376,7 @@ fn run_local(
     let exe = std::env::current_exe()
         .map_err(|e| io_error("find", Path::new("the stria executable"), e))?;
     let next = AtomicUsize::new(0);
-    let outcomes: Vec<std::sync::Mutex<Option<Result<Option<i32>, CliError>>>> = record
+    let outcomes: Vec<std::sync::Mutex<Option<RunResult>>> = record
         .scenarios
         .iter()
         .map(|_| std::sync::Mutex::new(None))
@@ -445,14 +445,12 @@ fn run_local(
     Ok(0)
 }
 
+/// What one scenario's run ended with: its exit code (none if killed by a signal).
+type RunResult = Result<Option<i32>, CliError>;
+
 /// One scenario's `stria run`, its output appended to `run.log`; a stop request is passed on
 /// as SIGTERM. Returns the exit code (none if it died by a signal).
-fn run_one(
-    exe: &Path,
-    sdir: &Path,
-    threads: usize,
-    stop: &AtomicBool,
-) -> Result<Option<i32>, CliError> {
+fn run_one(exe: &Path, sdir: &Path, threads: usize, stop: &AtomicBool) -> RunResult {
     let log_path = sdir.join("run.log");
     let log = std::fs::OpenOptions::new()
         .create(true)
