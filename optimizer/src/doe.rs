@@ -10,7 +10,7 @@
 
 use crate::problem::Variable;
 use rand::seq::SliceRandom;
-use rand::Rng;
+use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use serde::{Deserialize, Serialize};
 
@@ -44,6 +44,80 @@ pub fn latin_hypercube(n: usize, d: usize, rng: &mut ChaCha8Rng) -> Vec<Vec<f64>
         }
     }
     pts
+}
+
+/// Points `start..start + n` of an `points`-point Latin hypercube in `[0, 1)^d` given by
+/// `seed`, in O(n) time and memory whatever `points` is (a screening sweep of 10^13 points
+/// takes its batches this way). Each dimension's strata are a keyed pseudorandom permutation
+/// of `0..points` (a balanced Feistel network with cycle walking, after Black and Rogaway,
+/// "Ciphers with arbitrary finite domains", CT-RSA 2002), evaluated at the point's index; the
+/// position inside the stratum is draw `i` of the seed's ChaCha stream `j`. So point `i` depends
+/// on `seed` and `i` only. (Not the same design as [`latin_hypercube`], which shuffles.)
+pub fn latin_hypercube_slice(
+    points: usize,
+    start: usize,
+    n: usize,
+    d: usize,
+    seed: u64,
+) -> Vec<Vec<f64>> {
+    let mut pts = vec![vec![0.0; d]; n];
+    for j in 0..d {
+        let perm = IndexPermutation::new(points as u64, mix64(seed ^ mix64(j as u64 + 1)));
+        let mut rng = ChaCha8Rng::seed_from_u64(seed);
+        rng.set_stream(j as u64);
+        // One f64 is one u64: two 32-bit words of the stream.
+        rng.set_word_pos(2 * start as u128);
+        for (k, p) in pts.iter_mut().enumerate() {
+            let u: f64 = rng.random();
+            let stratum = perm.apply((start + k) as u64);
+            p[j] = (stratum as f64 + u) / points as f64;
+        }
+    }
+    pts
+}
+
+/// The finaliser of SplitMix64 (Steele, Lea and Flood, OOPSLA 2014): a bijective 64-bit mix.
+fn mix64(mut z: u64) -> u64 {
+    z = z.wrapping_add(0x9e37_79b9_7f4a_7c15);
+    z = (z ^ (z >> 30)).wrapping_mul(0xbf58_476d_1ce4_e5b9);
+    z = (z ^ (z >> 27)).wrapping_mul(0x94d0_49bb_1331_11eb);
+    z ^ (z >> 31)
+}
+
+/// A keyed permutation of `0..n`: a balanced Feistel network on the smallest even number of
+/// bits that holds `n`, walked again from its own output until the value falls below `n`
+/// (cycle walking; the domain is less than 4 n, so the expected walk is under four passes).
+struct IndexPermutation {
+    n: u64,
+    half_bits: u32,
+    keys: [u64; 6],
+}
+
+impl IndexPermutation {
+    fn new(n: u64, key: u64) -> IndexPermutation {
+        let bits = (64 - n.saturating_sub(1).leading_zeros()).max(2);
+        let half_bits = bits.div_ceil(2);
+        let mut keys = [0; 6];
+        for (r, k) in keys.iter_mut().enumerate() {
+            *k = mix64(key.wrapping_add(r as u64));
+        }
+        IndexPermutation { n, half_bits, keys }
+    }
+
+    fn apply(&self, i: u64) -> u64 {
+        let mask = (1u64 << self.half_bits) - 1;
+        let mut x = i;
+        loop {
+            let (mut l, mut r) = (x >> self.half_bits, x & mask);
+            for k in self.keys {
+                (l, r) = (r, l ^ (mix64(r ^ k) & mask));
+            }
+            x = (l << self.half_bits) | r;
+            if x < self.n {
+                return x;
+            }
+        }
+    }
 }
 
 /// Points `start..start + n` of the Owen-scrambled Sobol sequence with scramble `seed`, in
@@ -106,7 +180,16 @@ pub(crate) fn design(
 #[cfg(test)]
 mod tests {
     use super::*;
-    use rand::SeedableRng;
+
+    #[test]
+    fn index_permutation_is_a_bijection() {
+        for n in [1u64, 2, 3, 5, 64, 100, 1023, 4096] {
+            let p = IndexPermutation::new(n, 99);
+            let mut seen: Vec<u64> = (0..n).map(|i| p.apply(i)).collect();
+            seen.sort_unstable();
+            assert_eq!(seen, (0..n).collect::<Vec<_>>(), "n {n}");
+        }
+    }
 
     #[test]
     fn latin_hypercube_has_one_point_per_stratum() {

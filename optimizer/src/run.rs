@@ -13,8 +13,11 @@ use serde::{Deserialize, Serialize};
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::time::Instant;
 
-/// Version of the serialised [`Run`] state; bumped whenever its layout changes.
-pub const STATE_VERSION: u32 = 1;
+/// Version of the serialised [`Run`] state; bumped whenever its layout or meaning changes.
+/// 2: a Latin-hypercube screening sweep takes its points from
+/// [`doe::latin_hypercube_slice`] (batches in O(batch)); a version-1 state of such a sweep is
+/// refused, every other version-1 state reads unchanged.
+pub const STATE_VERSION: u32 = 2;
 
 /// Which algorithm a run uses.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -331,13 +334,24 @@ impl Run {
 
     /// Read a state written with `serde_json`, checking its version.
     pub fn from_json(text: &str) -> Result<Run, ConfigError> {
-        let run: Run = serde_json::from_str(text).map_err(|e| ConfigError::State(e.to_string()))?;
-        if run.version != STATE_VERSION {
+        let mut run: Run =
+            serde_json::from_str(text).map_err(|e| ConfigError::State(e.to_string()))?;
+        let lhs_screening = matches!(
+            &run.config.algorithm,
+            Algorithm::Screening(c) if c.design == InitialDesign::LatinHypercube
+        );
+        if run.version == 1 && lhs_screening {
+            return Err(ConfigError::State(
+                "state version 1 of a Latin-hypercube screening sweep: its points came from a construction this version no longer uses, so the sweep cannot continue".into(),
+            ));
+        }
+        if run.version != STATE_VERSION && run.version != 1 {
             return Err(ConfigError::State(format!(
-                "state version {} cannot be read by this version (reads {STATE_VERSION})",
+                "state version {} cannot be read by this version (reads {STATE_VERSION} and 1)",
                 run.version
             )));
         }
+        run.version = STATE_VERSION;
         let consistent = matches!(
             (&run.config.algorithm, &run.state),
             (Algorithm::Nsga2(_), AlgoState::Nsga2)
@@ -739,6 +753,38 @@ mod tests {
         let read = Run::from_json(&old).unwrap();
         assert!(read.config().keep_archive && read.config().track_hypervolume);
         assert_eq!(read.to_json(), full);
+    }
+
+    #[test]
+    fn version_one_states_read_except_a_latin_hypercube_sweep() {
+        let p = Zdt {
+            kind: ZdtKind::Zdt1,
+            n: 3,
+        };
+        let old = |c: RunConfig| {
+            let mut r = Run::new(c, &p).unwrap();
+            r.step(&p);
+            r.to_json().replacen("\"version\":2", "\"version\":1", 1)
+        };
+        let v1 = old(nsga2(3, 1000));
+        assert!(v1.contains("\"version\":1"));
+        assert_eq!(Run::from_json(&v1).unwrap().version, STATE_VERSION);
+        let screen = |design| {
+            RunConfig::new(
+                Algorithm::Screening(ScreeningConfig {
+                    design,
+                    points: 50,
+                    batch_size: 10,
+                }),
+                1,
+                1000,
+            )
+        };
+        assert!(Run::from_json(&old(screen(InitialDesign::Sobol))).is_ok());
+        let e = Run::from_json(&old(screen(InitialDesign::LatinHypercube))).unwrap_err();
+        assert!(e.to_string().contains("Latin-hypercube"), "{e}");
+        let v9 = old(nsga2(3, 1000)).replacen("\"version\":1", "\"version\":9", 1);
+        assert!(Run::from_json(&v9).is_err());
     }
 
     #[test]
