@@ -442,12 +442,16 @@ fn read_rom(r: &mut Reader) -> Result<RomConstants, CliError> {
         };
         let base = r.raw.file.parent().unwrap_or(Path::new("."));
         let path = base.join(rel);
-        let text = std::fs::read_to_string(&path).map_err(|e| {
+        let max = crate::fsio::CONSTANTS_FILE_MAX_BYTES;
+        let text = crate::fsio::read_input(&path, max).map_err(|e| {
             r.err(
                 "rom",
                 "constants_file",
                 format!("cannot read {}: {e}", path.display()),
-                "a constants file (TOML of [rom] keys) relative to the study file",
+                format!(
+                    "a constants file (TOML of [rom] keys, a regular file of at most {}) relative to the study file",
+                    crate::fsio::size_words(max)
+                ),
             )
         })?;
         for (key, x) in read_constants_file(&path, &text)? {

@@ -82,13 +82,17 @@ impl Study {
 
     /// Load a study file with `--set section.key=value` overrides applied before checking.
     pub fn load_with(path: &Path, sets: &[String]) -> Result<(Study, Vec<StudyWarning>), CliError> {
-        let text = std::fs::read_to_string(path).map_err(|e| {
+        let max = crate::fsio::STUDY_FILE_MAX_BYTES;
+        let text = crate::fsio::read_input(path, max).map_err(|e| {
             CliError::input(
                 path,
                 None,
                 "(file)",
                 format!("cannot read the study file: {e}"),
-                "a readable TOML file",
+                format!(
+                    "a readable regular TOML file of at most {}",
+                    crate::fsio::size_words(max)
+                ),
             )
         })?;
         Study::from_text(path, &text, sets)
