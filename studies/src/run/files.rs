@@ -22,6 +22,17 @@ pub struct RunDir {
 }
 
 impl RunDir {
+    /// The names of the files `stria run` writes.
+    pub const FILES: [&'static str; 7] = [
+        "checkpoint.json",
+        "evaluations.csv",
+        "front.csv",
+        "history.csv",
+        "summary.json",
+        "study.toml",
+        "journal.jsonl",
+    ];
+
     /// A run directory at `dir`.
     pub fn new(dir: &Path) -> RunDir {
         RunDir {
@@ -58,15 +69,7 @@ impl RunDir {
     }
     /// Every file `stria run` writes (what `--fresh` removes).
     pub fn all(&self) -> Vec<PathBuf> {
-        vec![
-            self.checkpoint(),
-            self.evaluations(),
-            self.front(),
-            self.history(),
-            self.summary(),
-            self.study(),
-            self.journal(),
-        ]
+        RunDir::FILES.iter().map(|n| self.dir.join(n)).collect()
     }
 }
 

@@ -25,7 +25,10 @@ use std::time::{Duration, Instant};
 use optimizer::{Run, StepReport, StopReason};
 
 use crate::error::{io_error, CliError};
-use crate::fsio::{append_synced, truncate_synced, write_atomic};
+use crate::fsio::{
+    append_synced, create_dir_synced, read_input, remove_stale_temps, truncate_synced,
+    write_atomic, STUDY_FILE_MAX_BYTES,
+};
 use crate::study::{read_fingerprint, read_model_revision, Study};
 use files::{
     parse_journal, Checkpoint, JournalRecord, RunDir, CHECKPOINT_VERSION, EVALUATIONS_CSV_CAP,
@@ -118,6 +121,53 @@ pub fn default_dir(study: &Path) -> PathBuf {
 /// ("try again later"; common practice for batch schedulers that requeue).
 pub const EXIT_PAUSED: u8 = 75;
 
+/// Most worker threads `--threads` takes (more only adds start-up time: the results do not
+/// depend on the thread count).
+pub const MAX_THREADS: usize = 1024;
+
+/// The command-line budget and thread options, checked against the same ranges as the study
+/// keys they override (`optimizer.max_evaluations`, `optimizer.hours`).
+fn check_options(opts: &RunOptions) -> Result<(), CliError> {
+    let key_range = |key: &str| {
+        crate::study::keys::spec("optimizer", key)
+            .and_then(|s| s.range)
+            .expect("the budget keys have ranges")
+    };
+    if let Some(n) = opts.max_evals {
+        let r = key_range("max_evaluations");
+        if !r.contains(n as f64) {
+            return Err(cmd_err(
+                "--max-evals",
+                format!("{n} evaluations"),
+                &format!(
+                    "a whole number {} (as optimizer.max_evaluations)",
+                    r.describe()
+                ),
+            ));
+        }
+    }
+    if let Some(h) = opts.hours {
+        let r = key_range("hours");
+        if !r.contains(h) {
+            return Err(cmd_err(
+                "--hours",
+                format!("{h} hours"),
+                &format!("a number of hours {} (as optimizer.hours)", r.describe()),
+            ));
+        }
+    }
+    if let Some(t) = opts.threads {
+        if !(1..=MAX_THREADS).contains(&t) {
+            return Err(cmd_err(
+                "--threads",
+                format!("{t} threads"),
+                &format!("a whole number from 1 to {MAX_THREADS}"),
+            ));
+        }
+    }
+    Ok(())
+}
+
 /// Run `stria run`.
 pub fn run(opts: &RunOptions) -> Result<Ended, CliError> {
     let never = AtomicBool::new(false);
@@ -127,27 +177,7 @@ pub fn run(opts: &RunOptions) -> Result<Ended, CliError> {
     for w in &warnings {
         eprintln!("{w}");
     }
-    if let Some(n) = opts.max_evals {
-        if n == 0 {
-            return Err(cmd_err(
-                "--max-evals",
-                "0 evaluations",
-                "a whole number >= 1",
-            ));
-        }
-    }
-    if let Some(h) = opts.hours {
-        if !(h.is_finite() && h > 0.0) {
-            return Err(cmd_err(
-                "--hours",
-                format!("{h} hours"),
-                "a number of hours > 0",
-            ));
-        }
-    }
-    if opts.threads == Some(0) {
-        return Err(cmd_err("--threads", "0 threads", "a whole number >= 1"));
-    }
+    check_options(opts)?;
     study.set_budget(opts.max_evals, opts.hours);
     if study.variables.is_empty() {
         return Err(CliError::input(
@@ -160,7 +190,7 @@ pub fn run(opts: &RunOptions) -> Result<Ended, CliError> {
     }
     let csv_cap = opts.evaluations_csv_cap.unwrap_or(EVALUATIONS_CSV_CAP);
     let dir = opts.out.clone().unwrap_or_else(|| default_dir(&opts.study));
-    std::fs::create_dir_all(&dir).map_err(|e| io_error("create", &dir, e))?;
+    create_dir_synced(&dir).map_err(|e| io_error("create", &dir, e))?;
     let rd = RunDir::new(&dir);
     // One run per directory at a time: an advisory lock, released by the OS however the
     // process ends (so a killed run never leaves a stale lock behind).
@@ -180,18 +210,21 @@ pub fn run(opts: &RunOptions) -> Result<Ended, CliError> {
             "wait for it to finish (or stop it with Ctrl-C), or give another --out directory",
         ));
     }
+    // Temporary files of atomic writes cut short by a kill (the lock says no other process
+    // is writing here).
+    remove_stale_temps(&dir, &RunDir::FILES).map_err(|e| io_error("clean", &dir, e))?;
     let problem = StudyProblem { study: &study };
     let fingerprint = study.fingerprint();
 
     if opts.fresh {
         for p in rd.all() {
-            if p.exists() {
+            if std::fs::symlink_metadata(&p).is_ok() {
                 std::fs::remove_file(&p).map_err(|e| io_error("remove", &p, e))?;
             }
         }
     } else if rd.study().exists() {
-        let text =
-            std::fs::read_to_string(rd.study()).map_err(|e| io_error("read", &rd.study(), e))?;
+        let text = read_input(&rd.study(), STUDY_FILE_MAX_BYTES)
+            .map_err(|e| io_error("read", &rd.study(), e))?;
         let old = read_fingerprint(&text).unwrap_or_default();
         let old_revision = read_model_revision(&text);
         if old != fingerprint && old_revision != Some(model::MODEL_REVISION) {
@@ -227,6 +260,9 @@ pub fn run(opts: &RunOptions) -> Result<Ended, CliError> {
     let mut state = if rd.checkpoint().exists() && !opts.fresh {
         resume(&rd, &study, &fingerprint, csv_cap)?
     } else {
+        if !opts.fresh {
+            refuse_work_without_checkpoint(&rd, &opts.study)?;
+        }
         start(&rd, &study, &problem, &fingerprint, csv_cap)?
     };
     write_atomic(&rd.study(), study.to_resolved_toml().as_bytes())
@@ -347,6 +383,57 @@ pub fn run(opts: &RunOptions) -> Result<Ended, CliError> {
         ),
     }
     Ok(ended)
+}
+
+/// A run directory without checkpoint.json but with finished work in it (rows past the
+/// headers, journal lines) is refused: starting again would write over that work. (A
+/// start killed before its first checkpoint leaves headers only, and starts again.)
+fn refuse_work_without_checkpoint(rd: &RunDir, study: &Path) -> Result<(), CliError> {
+    let mut found = Vec::new();
+    for path in [rd.evaluations(), rd.history(), rd.journal()] {
+        let text = match std::fs::symlink_metadata(&path) {
+            Ok(m) if m.is_file() => {
+                let mut head = Vec::new();
+                let f = std::fs::File::open(&path).map_err(|e| io_error("read", &path, e))?;
+                std::io::Read::read_to_end(&mut std::io::Read::take(f, 1 << 16), &mut head)
+                    .map_err(|e| io_error("read", &path, e))?;
+                Some((m.len(), head))
+            }
+            Ok(m) => Some((m.len(), b"\n\n".to_vec())),
+            Err(e) if e.kind() == std::io::ErrorKind::NotFound => None,
+            Err(e) => return Err(io_error("read", &path, e)),
+        };
+        let Some((len, head)) = text else { continue };
+        let is_journal = path == rd.journal();
+        // Past a header line (the CSVs) or anything at all (the journal).
+        let work = if is_journal {
+            len > 0
+        } else {
+            head.iter()
+                .position(|b| *b == b'\n')
+                .is_some_and(|i| (i as u64) + 1 < len)
+        };
+        if work {
+            found.push(format!(
+                "{} ({len} bytes)",
+                path.file_name().unwrap_or_default().to_string_lossy()
+            ));
+        }
+    }
+    if found.is_empty() {
+        return Ok(());
+    }
+    Err(CliError::input(
+        study,
+        None,
+        "--out",
+        format!(
+            "{} has no checkpoint.json but holds the work of a run: {}; starting again would write over it",
+            rd.dir.display(),
+            found.join(", ")
+        ),
+        "--fresh to discard that work and start again, or another --out directory",
+    ))
 }
 
 fn start(
