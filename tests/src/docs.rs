@@ -396,3 +396,28 @@ fn numbers_are_shown_without_false_precision() {
     assert_eq!(shown(1.334e-9), "1.334e-9");
     assert_eq!(shown(96_485.332_12), "96485.33212");
 }
+
+#[test]
+fn formats_doc_states_the_current_versions() {
+    // docs/formats.md names each layout's version number; it must be the one in the code.
+    let text = std::fs::read_to_string(root().join("docs/formats.md")).unwrap();
+    for (name, value) in [
+        (
+            "CHECKPOINT_VERSION",
+            studies::run::files::CHECKPOINT_VERSION,
+        ),
+        ("STATE_VERSION", optimizer::run::STATE_VERSION),
+        ("SCHEMA_VERSION", studies::handoff::case::SCHEMA_VERSION),
+    ] {
+        let stated = text
+            .split(&format!("`{name}`, now "))
+            .nth(1)
+            .and_then(|rest| rest.split(|c: char| !c.is_ascii_digit()).next())
+            .and_then(|n| n.parse::<u32>().ok());
+        assert_eq!(
+            stated,
+            Some(value),
+            "docs/formats.md must say \"`{name}`, now {value}\""
+        );
+    }
+}
