@@ -408,6 +408,7 @@ fn formats_doc_states_the_current_versions() {
         ),
         ("STATE_VERSION", optimizer::run::STATE_VERSION),
         ("SCHEMA_VERSION", studies::handoff::case::SCHEMA_VERSION),
+        ("CAMPAIGN_FORMAT", studies::campaign::CAMPAIGN_FORMAT),
     ] {
         let stated = text
             .split(&format!("`{name}`, now "))
