@@ -422,3 +422,49 @@ fn formats_doc_states_the_current_versions() {
         );
     }
 }
+
+#[test]
+fn tests_named_in_the_check_values_exist() {
+    // docs/references.md points each check value to the test that holds it, as
+    // `module::test_name`: each named function (or module) must still exist.
+    let root = root();
+    let text = std::fs::read_to_string(root.join("docs/references.md")).unwrap();
+    let mut files = Vec::new();
+    sources(&root, &mut files);
+    let rust: Vec<(String, String)> = files
+        .iter()
+        .filter(|f| f.extension().is_some_and(|e| e == "rs"))
+        .map(|f| {
+            let stem = f
+                .file_stem()
+                .unwrap_or_default()
+                .to_string_lossy()
+                .to_string();
+            (stem, std::fs::read_to_string(f).unwrap_or_default())
+        })
+        .collect();
+    let mut missing = Vec::new();
+    let mut named = 0;
+    for span in text.split('`').skip(1).step_by(2) {
+        let ident = |c: char| c.is_ascii_alphanumeric() || "_./".contains(c);
+        if !span.contains("::") || !span.replace("::", "").chars().all(ident) {
+            continue;
+        }
+        let name = span.rsplit("::").next().unwrap_or_default();
+        named += 1;
+        let found = rust
+            .iter()
+            .any(|(stem, body)| stem == name || body.contains(&format!("fn {name}(")));
+        if !found {
+            missing.push(span.to_string());
+        }
+    }
+    assert!(
+        named > 20,
+        "found only {named} test names: the scan is broken"
+    );
+    assert!(
+        missing.is_empty(),
+        "docs/references.md names tests that do not exist: {missing:?}"
+    );
+}
