@@ -28,8 +28,10 @@ pub mod nsga2;
 pub mod problem;
 pub mod problems;
 pub mod run;
+pub mod sampling;
 pub mod scalarised;
 pub mod screening;
+pub mod sensitivity;
 pub mod single;
 
 pub use archive::Archive;

@@ -4,5 +4,7 @@
 mod handoff_fit;
 mod model_refs;
 mod optimizer_refs;
+mod python_refs;
 mod scaling_refs;
+mod sensitivity_refs;
 mod studies_e2e;

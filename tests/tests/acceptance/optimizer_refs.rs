@@ -209,28 +209,15 @@ fn hypervolume_of_sampled_fronts_approaches_the_table() {
     assert!(hv < 0.807401 + 1e-6 && hv > 0.807401 - 0.01, "{hv}");
 }
 
-/// moocore's hypervolume of `points`, or None when python3 or moocore is not available.
+/// moocore's hypervolume of `points`, or None when the developer opted out of the python
+/// cross-checks (`python_refs::SKIP_VAR`).
 fn moocore_hypervolume(points: &[Vec<f64>], r: &[f64]) -> Option<f64> {
-    use std::io::Write;
-    use std::process::{Command, Stdio};
     let script = "import sys, json, moocore\n\
                   d = json.load(sys.stdin)\n\
                   print(repr(float(moocore.hypervolume(d['p'], ref=d['r']))))\n";
     let input = serde_json::json!({ "p": points, "r": r }).to_string();
-    let mut child = Command::new("python3")
-        .arg("-c")
-        .arg(script)
-        .stdin(Stdio::piped())
-        .stdout(Stdio::piped())
-        .stderr(Stdio::piped())
-        .spawn()
-        .ok()?;
-    child.stdin.take()?.write_all(input.as_bytes()).ok()?;
-    let out = child.wait_with_output().ok()?;
-    if !out.status.success() {
-        return None;
-    }
-    String::from_utf8(out.stdout).ok()?.trim().parse().ok()
+    let out = crate::python_refs::run("moocore", script, &input)?;
+    Some(out.trim().parse().expect("moocore prints a number"))
 }
 
 #[test]
@@ -244,10 +231,6 @@ fn hypervolume_matches_moocore() {
         let r = vec![1.0; m];
         let ours = hypervolume(&pts, &r);
         let Some(theirs) = moocore_hypervolume(&pts, &r) else {
-            if std::env::var_os("CI").is_some() {
-                panic!("moocore is not importable by python3, and CI is set (.ci/requirements.txt installs it)");
-            }
-            println!("note: python3 with moocore not available; moocore cross-check skipped");
             return;
         };
         assert!(
