@@ -40,14 +40,6 @@ pub use output::*;
 /// Study fingerprints include it, so a run is never resumed with a different model.
 pub const MODEL_REVISION: u32 = 6;
 
-/// The safety note that goes with every result of the model (docs/physics.md#safety), for the
-/// README, reports and hand-off cards.
-pub const SAFETY_NOTE: &str = "stria is a screening model: its results guide design and \
-detailed simulation, they do not certify a plant. Product water must meet the local \
-drinking-water rules. Electrodialysis stacks run at hazardous voltages; electrode reactions \
-make gases (hydrogen, chlorine, oxygen) that must be vented; overlimiting operation shifts pH \
-and can scale membranes. Defer to local codes and licensed practice.";
-
 /// Why an evaluation could not produce a result.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
 pub enum ModelError {

@@ -56,7 +56,7 @@ pub fn ionic_data(salt: Salt) -> IonicData {
             cation_limiting_conductivity: 50.08e-4,
             anion_limiting_conductivity: 76.31e-4,
             ion_size_m: NACL_ION_SIZE_M,
-            molar_mass_kg_mol: 58.443e-3,
+            molar_mass_kg_mol: NACL_MOLAR_MASS_G_MOL * 1e-3,
             apparent_molar_volume_m3_mol: 16.6e-6,
         },
         Salt::KCl => IonicData {
@@ -65,7 +65,7 @@ pub fn ionic_data(salt: Salt) -> IonicData {
             cation_limiting_conductivity: 73.48e-4,
             anion_limiting_conductivity: 76.31e-4,
             ion_size_m: KCL_ION_SIZE_M,
-            molar_mass_kg_mol: 74.551e-3,
+            molar_mass_kg_mol: KCL_MOLAR_MASS_G_MOL * 1e-3,
             apparent_molar_volume_m3_mol: 26.8e-6,
         },
         Salt::Custom {
@@ -82,6 +82,21 @@ pub fn ionic_data(salt: Salt) -> IonicData {
             molar_mass_kg_mol: 0.0,
             apparent_molar_volume_m3_mol: 0.0,
         },
+    }
+}
+
+/// Molar mass of NaCl, g/mol: Na 22.98977 + Cl 35.453 (IUPAC standard atomic weights; from
+/// memory). The one value for the solution density and for a feed given in g/L.
+pub const NACL_MOLAR_MASS_G_MOL: f64 = 58.443;
+/// Molar mass of KCl, g/mol: K 39.0983 + Cl 35.453 (IUPAC standard atomic weights; from memory).
+pub const KCL_MOLAR_MASS_G_MOL: f64 = 74.551;
+
+/// Molar mass of a named salt, g/mol; `None` for a custom salt (the study gives it).
+pub fn molar_mass_g_mol(salt: Salt) -> Option<f64> {
+    match salt {
+        Salt::NaCl => Some(NACL_MOLAR_MASS_G_MOL),
+        Salt::KCl => Some(KCL_MOLAR_MASS_G_MOL),
+        Salt::Custom { .. } => None,
     }
 }
 

@@ -81,7 +81,7 @@ pub enum CliError {
     },
     /// A figure could not be drawn.
     #[error("error: {0}")]
-    Figure(#[from] crate::report::svg::FigureError),
+    Figure(#[from] crate::figures::FigureError),
     /// The worker threads could not be started.
     #[error("error: could not start {threads} worker threads: {source}")]
     Threads {

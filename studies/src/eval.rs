@@ -8,13 +8,6 @@ use model::{Drive, Evaluation, LengthMode, ModelError, Options};
 use crate::error::CliError;
 use crate::study::Study;
 
-/// The caution that ends every design sheet and report (docs/physics.md#safety).
-pub const CAUTION: &str = "Caution: stria is a screening model. Its results guide design and \
-detailed simulation; they do not certify a plant. Product water must meet the local \
-drinking-water rules; ED stacks run at hazardous voltages; electrode reactions make gases \
-(hydrogen, chlorine, oxygen) that need venting; operation above the limiting current shifts pH \
-and can scale membranes. Defer to local codes and licensed practice.";
-
 /// A number with `sig` significant digits, plain or in exponent form as fits.
 pub fn sig(x: f64, sig: usize) -> String {
     if !x.is_finite() {
@@ -44,11 +37,7 @@ pub fn design_sheet(study: &Study, e: &Evaluation) -> String {
     let _ = writeln!(s, "stria design sheet: {}", study.name);
     let _ = writeln!(s, "study file: {}", study.file.display());
     let i = &e.inputs;
-    let molar_mass = match d.water.salt {
-        model::Salt::NaCl => Some(58.44),
-        model::Salt::KCl => Some(74.55),
-        model::Salt::Custom { .. } => None,
-    };
+    let molar_mass = model::properties::molar_mass_g_mol(d.water.salt);
     s.push_str("\nInputs\n");
     row(&mut s, "salt", i.salt.clone(), "");
     row(&mut s, "temperature", sig(i.temperature_K - 273.15, 4), "C");
@@ -389,7 +378,7 @@ pub fn design_sheet(study: &Study, e: &Evaluation) -> String {
         }
     }
     s.push('\n');
-    s.push_str(&wrap(CAUTION, 96));
+    s.push_str(&wrap(&format!("Caution: {}", crate::CAUTION), 96));
     s.push('\n');
     s
 }

@@ -529,7 +529,7 @@ fn the_window_state_is_the_solved_state_at_mid_length() {
     // the model's integration accuracy (1e-6), also for a product-target design, whose length
     // is found (the first cards interpolated linearly between integration steps and missed it
     // by up to 0.5 %).
-    use studies::report::rundir;
+    use studies::rundir;
     for edits in [
         vec![],
         vec![(

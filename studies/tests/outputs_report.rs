@@ -134,7 +134,7 @@ fn report_page_and_figures_are_valid_self_contained_and_show_the_front() {
 fn two_objectives_are_coloured_by_the_active_area_fraction() {
     let dir = tempfile::tempdir().unwrap();
     fixture::write_run(dir.path(), &["salt_removal_rate", "specific_energy"]);
-    let run = report::rundir::read(dir.path()).unwrap();
+    let run = studies::rundir::read(dir.path()).unwrap();
     let r = report::build(&run).unwrap();
     let fronts: Vec<_> = r
         .sections
@@ -151,7 +151,7 @@ fn two_objectives_are_coloured_by_the_active_area_fraction() {
 fn an_unfinished_run_is_reported_as_such() {
     let dir = tempfile::tempdir().unwrap();
     fixture::write_run(dir.path(), &["salt_removal_rate", "specific_energy"]);
-    let finished = report::build(&report::rundir::read(dir.path()).unwrap()).unwrap();
+    let finished = report::build(&studies::rundir::read(dir.path()).unwrap()).unwrap();
     assert!(!finished.html.contains("has not finished"));
     let path = dir.path().join("summary.json");
     let text = std::fs::read_to_string(&path)
@@ -159,7 +159,7 @@ fn an_unfinished_run_is_reported_as_such() {
         .replace("\"finished\":true", "\"finished\":false");
     assert!(text.contains("\"finished\":false"), "{text}");
     std::fs::write(&path, text).unwrap();
-    let paused = report::build(&report::rundir::read(dir.path()).unwrap()).unwrap();
+    let paused = report::build(&studies::rundir::read(dir.path()).unwrap()).unwrap();
     assert!(paused.html.contains("This run has not finished"));
     assert!(paused.html.contains("to resume it"));
 }

@@ -16,8 +16,8 @@ use model::interface::{self, InterfaceConditions, MembraneKind};
 use model::RomConstants;
 
 use crate::error::{io_error, CliError};
+use crate::figures;
 use crate::fsio::write_atomic;
-use crate::report::svg;
 use crate::study::Study;
 use data::DataSet;
 use solve::{FitResult, Predicted};
@@ -198,8 +198,8 @@ pub fn constants_toml(cal: &Calibration, data_file: &Path) -> Result<String, Cli
     for (k, v, s) in &cal.result.parameters {
         head.push_str(&format!(
             "# fitted: {k} = {} +- {} (one sigma; unit: {})\n",
-            svg::fmt_num(*v),
-            svg::fmt_num(*s),
+            figures::fmt_num(*v),
+            figures::fmt_num(*s),
             unit_of(k)
         ));
     }
@@ -239,20 +239,20 @@ pub fn plot(data: &DataSet, cal: &Calibration) -> Result<String, CliError> {
                 (v, s.current_density_a_m2)
             })
             .collect();
-        series.push(svg::Series {
+        series.push(figures::Series {
             name: format!("{curve}: data"),
             points: pts,
-            mark: svg::Mark::Points,
+            mark: figures::Mark::Points,
             colour,
         });
-        series.push(svg::Series {
+        series.push(figures::Series {
             name: format!("{curve}: fitted ROM"),
             points: line,
-            mark: svg::Mark::Line,
+            mark: figures::Mark::Line,
             colour,
         });
     }
-    svg::xy_chart(
+    figures::xy_chart(
         "Current-voltage data against the fitted ROM",
         "diffusion-layer voltage (V)",
         "current density (A/m^2)",
@@ -314,9 +314,9 @@ pub fn run(
         let start = solve::get(&cal.start, k).unwrap_or(f64::NAN);
         println!(
             "  {k:<26} {:>10} -> {:>10} +- {}  {}",
-            svg::fmt_num(start),
-            svg::fmt_num(*v),
-            svg::fmt_num(*s),
+            figures::fmt_num(start),
+            figures::fmt_num(*v),
+            figures::fmt_num(*s),
             unit_of(k)
         );
         if let Some((_, meaning)) = model::constants::rom_meaning(k) {

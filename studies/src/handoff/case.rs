@@ -3,7 +3,9 @@
 //! groups, mesh estimate and the ROM's predictions, built from plain numbers so that every
 //! relation here can be checked on its own.
 
+use model::constants::VACUUM_PERMITTIVITY;
 use model::interface::MembraneKind;
+use model::properties::{debye_length, thermal_voltage};
 use serde::Serialize;
 
 /// Version of the `case.json` schema; raised whenever a field changes meaning or is removed.
@@ -19,13 +21,6 @@ pub const PROBE_HEIGHT_OF_DELTA: f64 = 0.05;
 pub const CELLS_PER_DEBYE: f64 = 4.0;
 /// Geometric growth ratio of the wall-normal spacing away from the membrane (common practice).
 pub const GROWTH_RATIO: f64 = 1.05;
-
-/// Vacuum permittivity, F/m (CODATA 2018).
-const EPSILON_0: f64 = 8.8541878128e-12;
-/// Gas constant, J/(mol K) (CODATA 2018, exact).
-const R: f64 = 8.314462618;
-/// Faraday constant, C/mol (CODATA 2018, exact).
-const F: f64 = 96485.33212;
 
 /// Everything the card is computed from (SI units).
 #[derive(Debug, Clone, PartialEq)]
@@ -292,13 +287,6 @@ pub struct CaseCard {
     pub caution: &'static str,
 }
 
-/// The screening-model caution (docs/physics.md#safety).
-pub const CAUTION: &str = "stria is a screening model: its results guide design and detailed \
-simulation, they do not certify a plant. Product water must meet the local drinking-water rules; \
-ED stacks run at hazardous voltages; electrode reactions make gases (hydrogen, chlorine, oxygen) \
-that need venting; operation above the limiting current shifts pH and can scale membranes. Defer \
-to local codes and licensed practice.";
-
 /// The membrane whose diluate-side interface a card (and a fit of the results) describes, and
 /// its counter-ion transport number: the patterned one, the CEM when the pattern is on the CEM
 /// or on both (for NaCl and KCl the CEM reaches its limit first), the AEM when only the AEM
@@ -308,42 +296,6 @@ pub fn simulated_membrane(m: &model::Membranes) -> (MembraneKind, f64) {
         model::PatternSide::Aem => (MembraneKind::Aem, m.aem_transport_number),
         _ => (MembraneKind::Cem, m.cem_transport_number),
     }
-}
-
-/// Thermal voltage R T / F, V.
-pub fn thermal_voltage(temperature_k: f64) -> f64 {
-    R * temperature_k / F
-}
-
-/// Debye length of a 1:1 salt, sqrt(eps_r eps_0 R T / (2 F^2 c)), m (c in mol/m^3).
-pub fn debye_length(relative_permittivity: f64, temperature_k: f64, c_mol_m3: f64) -> f64 {
-    (relative_permittivity * EPSILON_0 * R * temperature_k / (2.0 * F * F * c_mol_m3)).sqrt()
-}
-
-/// Stripe edges of a window of `n` pitches starting with a conducting stripe at x = 0:
-/// (conducting, inert), each [start, end] in m. An unpatterned window is one conducting stripe.
-pub fn stripes(pitch_m: f64, open_fraction: f64, n: usize) -> (Vec<[f64; 2]>, Vec<[f64; 2]>) {
-    let window = pitch_m * n as f64;
-    if open_fraction >= 1.0 {
-        return (vec![[0.0, window]], Vec::new());
-    }
-    let mut conducting = Vec::with_capacity(n);
-    let mut inert = Vec::with_capacity(n);
-    for k in 0..n {
-        let x0 = pitch_m * k as f64;
-        let x1 = x0 + open_fraction * pitch_m;
-        let x2 = pitch_m * (k + 1) as f64;
-        conducting.push([x0, x1]);
-        inert.push([x1, x2]);
-    }
-    (conducting, inert)
-}
-
-/// Whole pitches in the window: enough for four vortex wavelengths and four diffusion-layer
-/// thicknesses, at least two, at most 400.
-pub fn pitches_for_window(pitch_m: f64, delta_m: f64, wavelength_m: Option<f64>) -> usize {
-    let span = 4.0 * delta_m.max(wavelength_m.unwrap_or(0.0));
-    ((span / pitch_m).ceil() as usize).clamp(2, 400)
 }
 
 /// Wall-normal cells for a graded spacing from `first` growing by `ratio` up to `max`, then
@@ -366,7 +318,7 @@ pub fn graded_cells(height: f64, first: f64, ratio: f64, max: f64) -> u64 {
 /// Build the card.
 pub fn build(inp: &CaseInputs) -> CaseCard {
     let vt = thermal_voltage(inp.temperature_k);
-    let eps = inp.relative_permittivity * EPSILON_0;
+    let eps = inp.relative_permittivity * VACUUM_PERMITTIVITY;
     let c = inp.bulk_concentration_mol_m3;
     let d = inp.salt_diffusivity_m2_s;
     let mu = inp.dynamic_viscosity_pa_s;
@@ -378,7 +330,7 @@ pub fn build(inp: &CaseInputs) -> CaseCard {
     let n = inp.pitches_in_window;
     let window = inp.pitch_m * n as f64;
     let start = inp.position_m - 0.5 * window;
-    let (conducting, inert) = stripes(inp.pitch_m, inp.open_fraction, n);
+    let (conducting, inert) = crate::figures::pattern::stripes(inp.pitch_m, inp.open_fraction, n);
 
     let first = lambda_d / CELLS_PER_DEBYE;
     let finest_feature = if inp.open_fraction < 1.0 {
@@ -615,6 +567,6 @@ pub fn build(inp: &CaseInputs) -> CaseCard {
                     .into(),
             },
         },
-        caution: CAUTION,
+        caution: crate::CAUTION,
     }
 }

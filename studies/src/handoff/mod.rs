@@ -14,9 +14,9 @@ use model::interface::{self, InterfaceConditions, MembraneKind};
 use model::{Design, Drive, LengthMode, Options};
 
 use crate::error::{io_error, CliError};
+use crate::figures;
 use crate::fsio::write_atomic;
-use crate::report::rundir::{self, RunDir};
-use crate::report::svg;
+use crate::rundir::{self, RunDir};
 use case::{CaseCard, CaseInputs};
 
 /// One case ready to write.
@@ -113,7 +113,7 @@ pub fn case_inputs(
     };
     let state = interface::solve(&conditions, v, constants);
     let pitches = pitches.unwrap_or_else(|| {
-        case::pitches_for_window(
+        figures::pattern::pitches_for_window(
             design.membranes.pitch_m,
             state.boundary_layer_thickness_m,
             state.vortex_wavelength_m,
@@ -164,7 +164,7 @@ fn layout(card: &CaseCard) -> Result<String, CliError> {
         "{}: window of {} pitches at {:.3} m, to scale",
         card.name, g.pitches_in_window, g.window_centre_from_inlet_m
     );
-    svg::pattern(&svg::PatternFigure {
+    figures::pattern(&figures::PatternFigure {
         title: &title,
         window_m: g.window_length_m,
         height_m: g.gap_m,
@@ -239,9 +239,9 @@ pub fn readme(card: &CaseCard) -> String {
         vt = card.operating_point.layer_voltage_thermal,
         ld = d.debye_over_delta.value,
         ehd = d.ehd_coupling.value,
-        pe = svg::fmt_num(d.peclet.value),
-        sc = svg::fmt_num(d.schmidt.value),
-        re = svg::fmt_num(d.reynolds.value),
+        pe = figures::fmt_num(d.peclet.value),
+        sc = figures::fmt_num(d.schmidt.value),
+        re = figures::fmt_num(d.reynolds.value),
         dy = card.mesh.wall_normal_first_spacing_m,
         cells = card.mesh.estimated_cells,
         cd = p.current_density_A_m2.value,
@@ -254,7 +254,7 @@ pub fn readme(card: &CaseCard) -> String {
         pitch = g.pitch_m,
         of = g.open_fraction,
         pos = g.window_centre_from_inlet_m,
-        caution = case::CAUTION,
+        caution = crate::CAUTION,
         membrane = if card.unpatterned_baseline {
             format!("unpatterned {}", card.membrane)
         } else {

@@ -5,10 +5,10 @@ use std::fmt::Write;
 
 use model::Evaluation;
 
-use super::rundir::RunDir;
-use super::svg::fmt_num;
 use super::{Chosen, Figure};
-use crate::handoff::case::CAUTION;
+use crate::figures::fmt_num;
+use crate::rundir::RunDir;
+use crate::CAUTION;
 
 /// Escape text for HTML.
 pub fn esc(s: &str) -> String {

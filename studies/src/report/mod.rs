@@ -6,8 +6,6 @@
 //! operating point, evaluated by the model.
 
 pub mod html;
-pub mod rundir;
-pub mod svg;
 
 use std::path::Path;
 use std::time::Instant;
@@ -15,9 +13,9 @@ use std::time::Instant;
 use model::{Design, Drive, Evaluation, Options};
 
 use crate::error::{io_error, CliError};
+use crate::figures;
 use crate::fsio::write_atomic;
-use crate::handoff::case;
-use rundir::RunDir;
+use crate::rundir::{self, RunDir};
 
 /// Designs shown in the current-voltage, profile and pattern figures (best in each objective).
 pub const BEST_FEW: usize = 3;
@@ -165,7 +163,7 @@ fn front_figures(run: &RunDir, baseline: Option<&Evaluation>) -> Result<Vec<Figu
                 })
                 .collect();
             let mark = baseline.map(|e| (oa.value(e), ob.value(e), baseline_label.as_str()));
-            let svg = svg::scatter_coloured(
+            let svg = figures::scatter_coloured(
                 &format!("Front: {} against {}", ob.key(), oa.key()),
                 &format!("{} ({}, {})", oa.key(), oa.unit(), oa.direction()),
                 &format!("{} ({}, {})", ob.key(), ob.unit(), ob.direction()),
@@ -201,14 +199,14 @@ fn hypervolume_figure(run: &RunDir) -> Result<Option<Figure>, CliError> {
     if pts.is_empty() {
         return Ok(None);
     }
-    let svg = svg::xy_chart(
+    let svg = figures::xy_chart(
         "Hypervolume of the front against evaluations",
         "evaluations",
         "hypervolume (minimised objectives, fixed reference point)",
-        &[svg::Series {
+        &[figures::Series {
             name: "hypervolume".into(),
             points: pts,
-            mark: svg::Mark::Line,
+            mark: figures::Mark::Line,
             colour: 1,
         }],
     )?;
@@ -236,13 +234,13 @@ fn design_figures(
         * 1.5;
     let volts: Vec<f64> = (1..=48).map(|k| vmax * k as f64 / 48.0).collect();
     let mut iv = Vec::new();
-    let mut add_iv = |name: String, d: &Design, colour: usize, mark: svg::Mark| {
+    let mut add_iv = |name: String, d: &Design, colour: usize, mark: figures::Mark| {
         let pts: Vec<(f64, f64)> = model::iv_curve(d, &run.study.constants, &volts)
             .iter()
             .map(|p| (p.voltage_v, p.current_density_a_m2))
             .filter(|p| p.0.is_finite() && p.1.is_finite())
             .collect();
-        iv.push(svg::Series {
+        iv.push(figures::Series {
             name,
             points: pts,
             mark,
@@ -250,20 +248,20 @@ fn design_figures(
         });
     };
     if let Some((d, _)) = base {
-        add_iv("unpatterned baseline".into(), d, 0, svg::Mark::Line);
+        add_iv("unpatterned baseline".into(), d, 0, figures::Mark::Line);
     }
     for (k, c) in chosen.iter().enumerate() {
         add_iv(
             format!("design {} ({})", c.id, c.why),
             &c.design,
             k + 1,
-            svg::Mark::Line,
+            figures::Mark::Line,
         );
         add_iv(
             format!("design {} unpatterned", c.id),
             &rundir::unpatterned(&c.design),
             k + 1,
-            svg::Mark::Faint,
+            figures::Mark::Faint,
         );
     }
     figs.push(Figure {
@@ -273,7 +271,7 @@ fn design_figures(
                   velocity and gap (faint, same colour), and the study's unpatterned baseline \
                   (black)."
             .into(),
-        svg: svg::xy_chart(
+        svg: figures::xy_chart(
             "Current-voltage curves",
             "cell-pair voltage (V)",
             "current density (A/m^2)",
@@ -304,9 +302,9 @@ fn design_figures(
     ];
     for (file, title, ylabel, pick) in profile_sets {
         let mut series = Vec::new();
-        let mut add = |name: String, e: &Evaluation, colour: usize, mark: svg::Mark| {
+        let mut add = |name: String, e: &Evaluation, colour: usize, mark: figures::Mark| {
             if let Some(p) = &e.profiles {
-                series.push(svg::Series {
+                series.push(figures::Series {
                     name,
                     points: p.x_m.iter().copied().zip(pick(p).iter().copied()).collect(),
                     mark,
@@ -315,16 +313,21 @@ fn design_figures(
             }
         };
         if let Some((_, e)) = base {
-            add("unpatterned baseline".into(), e, 0, svg::Mark::Line);
+            add("unpatterned baseline".into(), e, 0, figures::Mark::Line);
         }
         for (k, c) in chosen.iter().enumerate() {
-            add(format!("design {}", c.id), &c.eval, k + 1, svg::Mark::Line);
+            add(
+                format!("design {}", c.id),
+                &c.eval,
+                k + 1,
+                figures::Mark::Line,
+            );
             if let Some(t) = &c.twin {
                 add(
                     format!("design {} unpatterned", c.id),
                     t,
                     k + 1,
-                    svg::Mark::Faint,
+                    figures::Mark::Faint,
                 );
             }
         }
@@ -335,7 +338,7 @@ fn design_figures(
                  at its own operating point (faint, same colour), and the study's unpatterned \
                  baseline (black)."
             ),
-            svg: svg::xy_chart(title, "distance from the inlet (m)", ylabel, &series)?,
+            svg: figures::xy_chart(title, "distance from the inlet (m)", ylabel, &series)?,
         });
     }
     // each pattern to scale
@@ -343,8 +346,8 @@ fn design_figures(
         let m = &c.design.membranes;
         let delta = c.eval.transfer.boundary_layer_thickness_mean_m;
         let lv = c.eval.performance.vortex_wavelength_m;
-        let n = case::pitches_for_window(m.pitch_m, delta, lv).min(40);
-        let (conducting, _) = case::stripes(m.pitch_m, m.open_fraction, n);
+        let n = figures::pattern::pitches_for_window(m.pitch_m, delta, lv).min(40);
+        let (conducting, _) = figures::pattern::stripes(m.pitch_m, m.open_fraction, n);
         let window = m.pitch_m * n as f64;
         let height = (2.2 * delta)
             .max(lv.unwrap_or(0.0))
@@ -352,8 +355,8 @@ fn design_figures(
         let title = format!(
             "Design {}: pitch {} um, open fraction {}",
             c.id,
-            svg::fmt_num(m.pitch_m * 1e6),
-            svg::fmt_num(m.open_fraction)
+            figures::fmt_num(m.pitch_m * 1e6),
+            figures::fmt_num(m.open_fraction)
         );
         figs.push(Figure {
             file: format!("pattern_{}.svg", c.id),
@@ -369,7 +372,7 @@ fn design_figures(
                     ""
                 }
             ),
-            svg: svg::pattern(&svg::PatternFigure {
+            svg: figures::pattern(&figures::PatternFigure {
                 title: &title,
                 window_m: window,
                 height_m: height,

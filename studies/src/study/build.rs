@@ -17,8 +17,6 @@ use super::search::{
 use super::{Study, StudyWarning};
 use crate::error::CliError;
 
-const NACL_MOLAR_MASS: f64 = 58.44; // g/mol, CRC Handbook
-const KCL_MOLAR_MASS: f64 = 74.55; // g/mol, CRC Handbook
 /// Budget from which a run without an archive grid gets a warning.
 const LONG_RUN: u64 = 200_000;
 
@@ -149,11 +147,7 @@ fn read_water(r: &mut Reader) -> Result<Water, CliError> {
             }
         }
     }
-    let default_mass = match salt {
-        Salt::NaCl => Some(NACL_MOLAR_MASS),
-        Salt::KCl => Some(KCL_MOLAR_MASS),
-        Salt::Custom { .. } => None,
-    };
+    let default_mass = model::properties::molar_mass_g_mol(salt);
     let molar_mass = match r.float("water", "molar_mass_g_mol")? {
         Some(m) => Some(m),
         None => {

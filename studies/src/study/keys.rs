@@ -252,7 +252,7 @@ pub const KEYS: &[KeySpec] = &[
     k("water", "feed_g_L", Float, "g/L", 1.0, Derived("give feed_mol_m3 or feed_g_L"), closed(1e-4, 350.0), None, "Diluate feed concentration as mass of salt per litre, converted with molar_mass_g_mol."),
     k("water", "concentrate_feed_mol_m3", Float, "mol/m3", 1.0, Derived("same as the diluate feed"), closed(1e-3, 6000.0), closed(1.0, 1000.0), "Concentrate feed concentration, mol/m3."),
     k("water", "concentrate_feed_g_L", Float, "g/L", 1.0, Derived("same as the diluate feed"), closed(1e-4, 350.0), None, "Concentrate feed concentration, g/L."),
-    k("water", "molar_mass_g_mol", Float, "g/mol", 1.0, Derived("58.44 for NaCl, 74.55 for KCl; required for a custom salt given in g/L"), closed(1.0, 1000.0), None, "Molar mass of the salt, for g/L inputs."),
+    k("water", "molar_mass_g_mol", Float, "g/mol", 1.0, Derived("58.443 for NaCl, 74.551 for KCl (the model's values); required for a custom salt given in g/L"), closed(1.0, 1000.0), None, "Molar mass of the salt, for g/L inputs."),
     k("water", "cation_diffusivity_m2_s", Float, "m2/s", 1.0, Derived("custom salt only"), pos(1e-7), None, "Custom salt: cation diffusivity at 25 C, infinite dilution."),
     k("water", "anion_diffusivity_m2_s", Float, "m2/s", 1.0, Derived("custom salt only"), pos(1e-7), None, "Custom salt: anion diffusivity at 25 C, infinite dilution."),
     k("water", "cation_conductivity_S_m2_mol", Float, "S m2/mol", 1.0, Derived("custom salt only"), pos(0.1), None, "Custom salt: cation limiting molar conductivity at 25 C."),
@@ -526,10 +526,50 @@ mod tests {
                 }
             }
         }
-        // The unit in a dimensional key matches its unit column.
+        // The unit in a key's name is its unit column: "cm/s" ends the key in `_cm_s`, "Ohm cm2"
+        // in `_ohm_cm2` (case aside); a few units read better spelled out in the name.
+        let spelled = [
+            ("h", "hours"),
+            ("%/yr", "percent"),
+            ("h/yr", "per_year"),
+            ("currency/kWh", "per_kwh"),
+            ("currency/m2", "per_m2"),
+        ];
+        for s in KEYS
+            .iter()
+            .filter(|s| !matches!(s.unit, "-" | "objective units"))
+        {
+            let suffix = spelled
+                .iter()
+                .find(|(unit, _)| *unit == s.unit)
+                .map_or_else(
+                    || s.unit.replace([' ', '/'], "_"),
+                    |(_, name)| name.to_string(),
+                );
+            assert!(
+                s.key.to_lowercase().ends_with(&suffix.to_lowercase()),
+                "{}.{} does not carry its unit {} in its name",
+                s.section,
+                s.key,
+                s.unit
+            );
+        }
+        // A key with a conversion factor has a unit to convert from.
         for s in KEYS.iter().filter(|s| s.to_si != 1.0) {
-            let suffix = s.key.rsplit('_').next().unwrap();
-            assert!(!suffix.is_empty(), "{}", s.key);
+            assert_ne!(s.unit, "-", "{}.{}", s.section, s.key);
+        }
+    }
+
+    /// The default molar masses quoted in the reference are the model's.
+    #[test]
+    fn quoted_molar_masses_are_the_models() {
+        let row = KEYS.iter().find(|s| s.key == "molar_mass_g_mol").unwrap();
+        let DefaultValue::Derived(text) = row.default else {
+            panic!("molar_mass_g_mol: {:?}", row.default)
+        };
+        for salt in [model::Salt::NaCl, model::Salt::KCl] {
+            let m = model::properties::molar_mass_g_mol(salt).unwrap();
+            assert!(text.contains(&format!("{m} for {}", salt.name())), "{text}");
         }
     }
 

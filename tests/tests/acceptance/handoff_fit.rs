@@ -1,31 +1,9 @@
 //! Acceptance checks: hand-off case cards and calibration, against published relations.
 
-use studies::handoff::case;
-
 // CODATA 2018 (docs/references.md#physical-constants).
 const R: f64 = 8.314462618;
 const F: f64 = 96485.33212;
 const EPS0: f64 = 8.8541878128e-12;
-
-/// Debye length of a 1:1 salt at 25 C: 0.304 / sqrt(c in mol/L) nm, 9.61 nm at 1 mM and
-/// 0.961 nm at 0.1 M (Israelachvili, Intermolecular and Surface Forces, 3rd ed. 2011, ch. 14),
-/// 0.5 %, with the permittivity of water at 25 C, 78.4 (IAPWS 1997 release).
-#[test]
-fn case_card_debye_length_matches_israelachvili() {
-    for (c_mol_m3, nm) in [(1.0, 9.61), (100.0, 0.961)] {
-        let ld = case::debye_length(78.4, 298.15, c_mol_m3);
-        assert!(
-            (ld / (nm * 1e-9) - 1.0).abs() < 0.005,
-            "{c_mol_m3} mM: {ld}"
-        );
-    }
-}
-
-/// Thermal voltage RT/F = 25.693 mV at 298.15 K (docs/references.md#physical-constants, computed from CODATA 2018).
-#[test]
-fn case_card_thermal_voltage() {
-    assert!((case::thermal_voltage(298.15) - 0.025693).abs() < 5e-7);
-}
 
 /// Electrohydrodynamic coupling constant eps (RT/F)^2 / (mu D) of aqueous NaCl at 25 C: about
 /// 0.5 in the electroconvection literature (from memory, wide tolerance 0.25-1.0); with the
@@ -47,7 +25,7 @@ fn coupling_constant_of_aqueous_nacl_at_25_c() {
 #[test]
 fn stripe_edges_tile_the_window() {
     let (pitch, f, n) = (150e-6, 0.35, 7);
-    let (c, i) = case::stripes(pitch, f, n);
+    let (c, i) = studies::figures::pattern::stripes(pitch, f, n);
     let open: f64 = c.iter().map(|s| s[1] - s[0]).sum();
     let inert: f64 = i.iter().map(|s| s[1] - s[0]).sum();
     assert!((open / (n as f64 * pitch) - f).abs() < 1e-12);
