@@ -38,12 +38,13 @@ fn read_csv(path: &Path) -> (Vec<String>, Vec<Vec<String>>) {
 
 #[test]
 fn feed_in_grams_per_litre_converts_with_the_handbook_molar_mass() {
-    // NaCl molar mass 58.44 g/mol (CRC Handbook of Chemistry and Physics); 2.4 g/L.
+    // NaCl molar mass 58.443 g/mol (Na 22.98977 + Cl 35.453, IUPAC standard atomic weights;
+    // from memory; the CRC Handbook rounds it to 58.44); 2.4 g/L.
     let (study, warnings) = Study::load(&demo("quick.toml")).unwrap();
     assert!(warnings.is_empty(), "{warnings:?}");
     approx::assert_relative_eq!(
         study.baseline.water.feed_concentration_mol_m3,
-        2.4 / 58.44 * 1000.0,
+        2.4 / 58.443 * 1000.0,
         max_relative = 1e-12
     );
     // 16 C = 289.15 K (definition of the Celsius scale, SI Brochure).
