@@ -387,10 +387,10 @@ fn eval_json_has_the_schema_fields() {
         80e-6,
         max_relative = 1e-12
     );
-    // 2.4 g/L NaCl (58.44 g/mol) = 41.07 mol/m3.
+    // 2.4 g/L NaCl (58.443 g/mol, IUPAC standard atomic weights; from memory) = 41.07 mol/m3.
     approx::assert_relative_eq!(
         v["inputs"]["feed_concentration_mol_m3"].as_f64().unwrap(),
-        2.4 / 58.44 * 1000.0,
+        2.4 / 58.443 * 1000.0,
         max_relative = 1e-12
     );
     let sheet = stria(&["eval", demo("quick.toml").to_str().unwrap(), "--profile"]);
