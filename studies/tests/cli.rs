@@ -804,7 +804,9 @@ fn a_journal_that_does_not_follow_from_the_checkpoint_is_computed_again() {
         "elapsed_s": 1.0,
         "outcomes": vec![outcome; 16],
     });
-    std::fs::write(out.join("journal.jsonl"), format!("{record}\n")).unwrap();
+    // Sealed with its checksum, as the run writes it, so it is the replay that refuses it.
+    let line = studies::run::files::seal(&record.to_string());
+    std::fs::write(out.join("journal.jsonl"), format!("{line}\n")).unwrap();
     let o = stria(&[
         "run",
         study.to_str().unwrap(),

@@ -11,8 +11,71 @@ use crate::study::{Objective, Study};
 /// Rows of evaluations.csv kept at most; later evaluations are counted but not written.
 pub const EVALUATIONS_CSV_CAP: u64 = 1_000_000;
 
-/// Version of checkpoint.json's layout (2: a snapshot plus journal.jsonl).
-pub const CHECKPOINT_VERSION: u32 = 2;
+/// Version of checkpoint.json's layout (2: a snapshot plus journal.jsonl; 3: the checkpoint
+/// and every journal line end in their CRC-32, see [`seal`]). A version-2 run resumes
+/// unchecked; the next snapshot writes version 3.
+pub const CHECKPOINT_VERSION: u32 = 3;
+
+/// Largest checkpoint.json read (4 GiB; the state of a run with a bounded archive is a few
+/// megabytes).
+pub const CHECKPOINT_MAX_BYTES: u64 = 4 << 30;
+
+/// A snapshot is written once the journal has grown by this much since the last one (as well
+/// as every [`snapshot_every`](super) seconds), so the journal a resume reads stays small.
+pub const JOURNAL_SNAPSHOT_BYTES: u64 = 32 << 20;
+
+/// Largest journal.jsonl read (1 GiB: the snapshot rule keeps it near
+/// [`JOURNAL_SNAPSHOT_BYTES`] plus one generation).
+pub const JOURNAL_MAX_BYTES: u64 = 1 << 30;
+
+/// The tail [`seal`] appends: `,"crc32":"` + 8 hex digits + `"}`.
+const SEAL_LEN: usize = 20;
+
+/// Seal a JSON object's text with the CRC-32 (IEEE, `crc32fast`) of its bytes, as one more
+/// field at its end: `{...}` becomes `{...,"crc32":"1a2b3c4d"}`. The result is still one JSON
+/// object; [`unseal`] checks and removes the field. Corruption that leaves the JSON
+/// well-formed (a changed digit) is then seen.
+pub fn seal(object: &str) -> String {
+    debug_assert!(object.starts_with('{') && object.ends_with('}') && object.len() > 2);
+    let crc = crc32fast::hash(object.as_bytes());
+    format!("{},\"crc32\":\"{crc:08x}\"}}", &object[..object.len() - 1])
+}
+
+/// What [`unseal`] found.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub enum Sealed {
+    /// The checksum matches: the object's text as it was sealed.
+    Good(String),
+    /// No checksum field at the end (a file of an older layout).
+    Unsealed,
+    /// A checksum that does not match the text.
+    Bad,
+}
+
+/// Check and remove the checksum [`seal`] added.
+pub fn unseal(text: &str) -> Sealed {
+    let Some(cut) = text.len().checked_sub(SEAL_LEN) else {
+        return Sealed::Unsealed;
+    };
+    let (Some(body), Some(tail)) = (text.get(..cut), text.get(cut..)) else {
+        return Sealed::Unsealed;
+    };
+    let Some(hex) = tail
+        .strip_prefix(",\"crc32\":\"")
+        .and_then(|t| t.strip_suffix("\"}"))
+    else {
+        return Sealed::Unsealed;
+    };
+    let Ok(crc) = u32::from_str_radix(hex, 16) else {
+        return Sealed::Bad;
+    };
+    let object = format!("{body}}}");
+    if crc32fast::hash(object.as_bytes()) == crc {
+        Sealed::Good(object)
+    } else {
+        Sealed::Bad
+    }
+}
 
 /// Paths of a run directory.
 #[derive(Debug, Clone)]
@@ -113,25 +176,60 @@ pub struct JournalRecord {
     pub outcomes: Vec<Evaluated>,
 }
 
+/// A journal as read: the records up to the first damaged line, and what was wrong with that
+/// line (`None`: every whole line was good).
+#[derive(Debug, Clone, PartialEq)]
+pub struct JournalRead {
+    /// Records of the good lines before any damage, in order.
+    pub records: Vec<JournalRecord>,
+    /// The first damaged line, said in words, e.g. "line 7 fails its checksum".
+    pub damage: Option<String>,
+}
+
 /// The committed records of a journal's text, in order: every whole line (ending in a
-/// newline) that parses; a last line without its newline is a write cut short by a kill and
-/// is ignored. A damaged line followed by more lines is an error.
-pub fn parse_journal(text: &str) -> Result<Vec<JournalRecord>, String> {
-    let mut out = Vec::new();
-    let mut lines = text.split_inclusive('\n').peekable();
-    while let Some(line) = lines.next() {
-        if !line.ends_with('\n') {
+/// newline) that passes its checksum (`sealed`; a version-2 journal has none) and parses. A
+/// last line without its newline is a write cut short by a kill and is ignored. At a damaged
+/// line the journal is cut: the records before it are returned with the damage named.
+pub fn parse_journal(text: &str, sealed: bool) -> JournalRead {
+    let mut records = Vec::new();
+    for (k, line) in text.split_inclusive('\n').enumerate() {
+        let Some(line) = line.strip_suffix('\n') else {
             break;
-        }
-        match serde_json::from_str::<JournalRecord>(line) {
-            Ok(r) => out.push(r),
-            Err(e) if lines.peek().is_some() => {
-                return Err(format!("line {} is damaged ({e})", out.len() + 1));
+        };
+        let body = if sealed {
+            match unseal(line) {
+                Sealed::Good(b) => b,
+                Sealed::Bad | Sealed::Unsealed => {
+                    return JournalRead {
+                        records,
+                        damage: Some(format!("line {} fails its checksum", k + 1)),
+                    }
+                }
             }
-            Err(_) => break,
+        } else {
+            line.to_string()
+        };
+        match serde_json::from_str::<JournalRecord>(&body) {
+            Ok(r) => records.push(r),
+            Err(e) => {
+                return JournalRead {
+                    records,
+                    damage: Some(format!("line {} is not a journal record ({e})", k + 1)),
+                }
+            }
         }
     }
-    Ok(out)
+    JournalRead {
+        records,
+        damage: None,
+    }
+}
+
+/// One journal line: the record's JSON, sealed, with its newline.
+pub fn journal_line(record: &JournalRecord) -> Result<String, serde_json::Error> {
+    let mut line = seal(&serde_json::to_string(record)?);
+    line.push('\n');
+    Ok(line)
 }
 
 /// A number as written in every CSV: Rust's shortest round-trip form, so it is bit-stable.
@@ -322,24 +420,59 @@ mod tests {
     }
 
     fn line(r: &JournalRecord) -> String {
-        format!("{}\n", serde_json::to_string(r).unwrap())
+        journal_line(r).unwrap()
     }
 
     #[test]
     fn journal_round_trips_bit_for_bit_and_ignores_a_torn_last_line() {
         let (a, b) = (record(1), record(2));
         let whole = line(&a) + &line(&b);
-        assert_eq!(parse_journal(&whole).unwrap(), vec![a.clone(), b.clone()]);
+        let read = parse_journal(&whole, true);
+        assert_eq!(read.records, vec![a.clone(), b.clone()]);
+        assert_eq!(read.damage, None);
         // Cut anywhere inside the second line: only the first record is committed.
         for cut in line(&a).len()..whole.len() {
-            assert_eq!(parse_journal(&whole[..cut]).unwrap(), vec![a.clone()]);
+            let read = parse_journal(&whole[..cut], true);
+            assert_eq!(read.records, vec![a.clone()]);
+            assert_eq!(read.damage, None);
         }
-        assert!(parse_journal("").unwrap().is_empty());
+        assert!(parse_journal("", true).records.is_empty());
     }
 
     #[test]
-    fn a_damaged_line_inside_the_journal_is_an_error() {
+    fn a_damaged_line_cuts_the_journal_there() {
         let text = line(&record(1)) + "{\"generation\": oops}\n" + &line(&record(3));
-        assert!(parse_journal(&text).is_err());
+        let read = parse_journal(&text, true);
+        assert_eq!(read.records, vec![record(1)]);
+        assert!(read.damage.unwrap().contains("line 2"));
+    }
+
+    #[test]
+    fn one_changed_digit_fails_the_checksum() {
+        // Corruption that leaves the JSON well-formed: every digit of the line changed in
+        // turn is seen.
+        let good = line(&record(2));
+        for (i, c) in good.char_indices().filter(|(_, c)| c.is_ascii_digit()) {
+            let other = if c == '9' { '8' } else { (c as u8 + 1) as char };
+            let mut bad = good.clone();
+            bad.replace_range(i..i + 1, &other.to_string());
+            let text = line(&record(1)) + &bad + &line(&record(3));
+            let read = parse_journal(&text, true);
+            assert_eq!(read.records, vec![record(1)], "digit at {i}");
+            assert!(read.damage.is_some());
+        }
+    }
+
+    #[test]
+    fn seal_and_unseal() {
+        let sealed = seal("{\"a\":1}");
+        assert!(serde_json::from_str::<serde_json::Value>(&sealed).is_ok());
+        assert_eq!(unseal(&sealed), Sealed::Good("{\"a\":1}".into()));
+        assert_eq!(unseal("{\"a\":1}"), Sealed::Unsealed);
+        assert_eq!(unseal(&sealed.replace("\"a\":1", "\"a\":2")), Sealed::Bad);
+        // A version-2 journal (no seals) still reads.
+        let plain = serde_json::to_string(&record(1)).unwrap() + "\n";
+        assert_eq!(parse_journal(&plain, false).records, vec![record(1)]);
+        assert!(parse_journal(&plain, true).damage.is_some());
     }
 }

@@ -31,8 +31,9 @@ use crate::fsio::{
 };
 use crate::study::{read_fingerprint, read_model_revision, Study};
 use files::{
-    parse_journal, Checkpoint, JournalRecord, RunDir, CHECKPOINT_VERSION, EVALUATIONS_CSV_CAP,
-    HISTORY_HEADER,
+    journal_line, parse_journal, seal, unseal, Checkpoint, JournalRecord, RunDir, Sealed,
+    CHECKPOINT_MAX_BYTES, CHECKPOINT_VERSION, EVALUATIONS_CSV_CAP, HISTORY_HEADER,
+    JOURNAL_MAX_BYTES, JOURNAL_SNAPSHOT_BYTES,
 };
 use problem::{run_config, Replay, StudyProblem};
 
@@ -80,6 +81,10 @@ struct State {
     last_snapshot: Instant,
     /// How often the whole state is written ([`snapshot_every`], read once).
     snapshot_every: Duration,
+    /// Bytes appended to the journal since the last snapshot.
+    journal_bytes: u64,
+    /// A snapshot is due once `journal_bytes` reaches this ([`journal_snapshot_bytes`]).
+    journal_snapshot_bytes: u64,
     /// Journalled generations after the snapshot, to replay on resume.
     pending: Vec<JournalRecord>,
 }
@@ -95,6 +100,15 @@ fn snapshot_every() -> Duration {
         .and_then(|v| v.parse::<f64>().ok())
         .filter(|v| v.is_finite() && *v >= 0.0)
         .map_or(Duration::from_secs(30), Duration::from_secs_f64)
+}
+
+/// Journal growth that makes a snapshot due ([`JOURNAL_SNAPSHOT_BYTES`]; the environment
+/// variable `STRIA_JOURNAL_SNAPSHOT_BYTES` overrides it, for tests).
+fn journal_snapshot_bytes() -> u64 {
+    std::env::var("STRIA_JOURNAL_SNAPSHOT_BYTES")
+        .ok()
+        .and_then(|v| v.parse::<u64>().ok())
+        .unwrap_or(JOURNAL_SNAPSHOT_BYTES)
 }
 
 fn cmd_err(field: &str, message: impl Into<String>, allowed: &str) -> CliError {
@@ -469,6 +483,8 @@ fn start(
         derived_written: None,
         last_snapshot: Instant::now(),
         snapshot_every: snapshot_every(),
+        journal_bytes: 0,
+        journal_snapshot_bytes: journal_snapshot_bytes(),
         pending: Vec::new(),
     };
     write_atomic(&rd.study(), study.to_resolved_toml().as_bytes())
@@ -482,16 +498,33 @@ fn start(
 
 fn resume(rd: &RunDir, study: &Study, fingerprint: &str, csv_cap: u64) -> Result<State, CliError> {
     let path = rd.checkpoint();
-    let text = std::fs::read_to_string(&path).map_err(|e| io_error("read", &path, e))?;
+    let text = read_input(&path, CHECKPOINT_MAX_BYTES).map_err(|e| io_error("read", &path, e))?;
+    let (text, sealed) = match unseal(text.trim_end()) {
+        Sealed::Good(body) => (body, true),
+        // Version 2 had no checksum; its version is checked below.
+        Sealed::Unsealed => (text, false),
+        Sealed::Bad => {
+            return Err(CliError::Runtime(format!(
+                "{} fails its checksum: it was changed or damaged after it was written, and resuming from it would not give the run's result; start afresh with --fresh",
+                path.display()
+            )))
+        }
+    };
     let cp: Checkpoint = serde_json::from_str(&text).map_err(|source| CliError::Damaged {
         path: path.clone(),
         source,
     })?;
-    if cp.version != CHECKPOINT_VERSION {
+    let readable = if sealed {
+        cp.version == CHECKPOINT_VERSION
+    } else {
+        cp.version == 2
+    };
+    if !readable {
         return Err(CliError::Runtime(format!(
-            "{} has layout version {}, this stria reads {CHECKPOINT_VERSION}; start afresh with --fresh",
+            "{} has layout version {}{}, this stria reads {CHECKPOINT_VERSION} (and 2); start afresh with --fresh",
             path.display(),
-            cp.version
+            cp.version,
+            if sealed { "" } else { " without a checksum" }
         )));
     }
     if cp.fingerprint != fingerprint {
@@ -522,30 +555,36 @@ fn resume(rd: &RunDir, study: &Study, fingerprint: &str, csv_cap: u64) -> Result
     // The generations committed to the journal after the snapshot (a journal not yet emptied
     // after a snapshot still holds older ones: skipped).
     let journal = rd.journal();
-    let text = match std::fs::read_to_string(&journal) {
+    let text = match read_input(&journal, JOURNAL_MAX_BYTES) {
         Ok(t) => t,
         Err(e) if e.kind() == std::io::ErrorKind::NotFound => String::new(),
         Err(e) => return Err(io_error("read", &journal, e)),
     };
-    let damaged = |why: String| {
-        CliError::Runtime(format!(
-            "{} is damaged ({why}); start afresh with --fresh",
-            journal.display()
-        ))
-    };
-    let pending: Vec<JournalRecord> = parse_journal(&text)
-        .map_err(damaged)?
-        .into_iter()
-        .filter(|r| r.generation > run.generation())
-        .collect();
-    for (k, r) in pending.iter().enumerate() {
-        if r.generation != run.generation() + 1 + k as u64 {
-            return Err(damaged(format!(
+    // A damaged line cuts the journal there: the generations before it are replayed, the
+    // rest are computed again (nothing after the damage can be trusted).
+    let read = parse_journal(&text, sealed);
+    let mut damage = read.damage;
+    let mut pending = Vec::new();
+    for r in read.records {
+        if r.generation <= run.generation() {
+            continue;
+        }
+        if r.generation != run.generation() + 1 + pending.len() as u64 {
+            damage.get_or_insert(format!(
                 "generation {} follows the snapshot's {} out of order",
                 r.generation,
                 run.generation()
-            )));
+            ));
+            break;
         }
+        pending.push(r);
+    }
+    if let Some(why) = damage {
+        eprintln!(
+            "{} is damaged ({why}): cut there; the {} generation(s) before it are replayed and the rest computed again",
+            journal.display(),
+            pending.len()
+        );
     }
     let state = State {
         run,
@@ -558,6 +597,8 @@ fn resume(rd: &RunDir, study: &Study, fingerprint: &str, csv_cap: u64) -> Result
         derived_written: None,
         last_snapshot: Instant::now(),
         snapshot_every: snapshot_every(),
+        journal_bytes: 0,
+        journal_snapshot_bytes: journal_snapshot_bytes(),
         pending,
     };
     if state.pending.is_empty() {
@@ -678,10 +719,10 @@ fn commit(
         elapsed_s: elapsed,
         outcomes: report.new.clone(),
     };
-    let mut entry = serde_json::to_string(&record).map_err(|e| CliError::json("journal", e))?;
-    entry.push('\n');
+    let entry = journal_line(&record).map_err(|e| CliError::json("journal", e))?;
     append_synced(&rd.journal(), entry.as_bytes())
         .map_err(|e| io_error("append to", &rd.journal(), e))?;
+    state.journal_bytes += entry.len() as u64;
     // front.csv and summary.json follow from the checkpoint (a resume rewrites them), so on
     // fast generations they are refreshed every few seconds rather than every generation.
     if !matches!(state.derived_written, Some(t) if t.elapsed() < DERIVED_EVERY) {
@@ -689,7 +730,9 @@ fn commit(
         write_summary(rd, study, state, elapsed, fingerprint, stop_reason, false)?;
         state.derived_written = Some(Instant::now());
     }
-    if state.last_snapshot.elapsed() >= state.snapshot_every {
+    if state.last_snapshot.elapsed() >= state.snapshot_every
+        || state.journal_bytes >= state.journal_snapshot_bytes
+    {
         write_snapshot(rd, state, elapsed, fingerprint)?;
     }
     Ok(())
@@ -706,6 +749,7 @@ fn write_snapshot(
     write_checkpoint(rd, state, elapsed, fingerprint)?;
     write_atomic(&rd.journal(), b"").map_err(|e| io_error("write", &rd.journal(), e))?;
     state.last_snapshot = Instant::now();
+    state.journal_bytes = 0;
     Ok(())
 }
 
@@ -740,7 +784,7 @@ fn write_checkpoint(
     let head = head
         .strip_suffix("\"run\":null}")
         .ok_or_else(|| CliError::Runtime("checkpoint: unexpected layout".into()))?;
-    let text = format!("{head}\"run\":{}}}", state.run.to_json());
+    let text = seal(&format!("{head}\"run\":{}}}", state.run.to_json()));
     write_atomic(&rd.checkpoint(), text.as_bytes())
         .map_err(|e| io_error("write", &rd.checkpoint(), e))
 }

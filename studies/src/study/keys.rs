@@ -308,7 +308,7 @@ pub const KEYS: &[KeySpec] = &[
     k("constraints", "max_reynolds", Float, "-", 1.0, Unset, pos(1e6), None, "Highest allowed channel Reynolds number (laminar flow below about 2000 in an open slit)."),
     k("optimizer", "algorithm", Choice(ALGORITHMS), "-", 1.0, Value("\"nsga2\""), None, None, "nsga2: multi-objective evolutionary search; scalarised: a sweep of single-objective sub-problems; screening: a space-filling sample."),
     k("optimizer", "seed", Int, "-", 1.0, Value("1"), closed(0.0, 9.007e15), None, "Seed of every random number of the run."),
-    k("optimizer", "population", Int, "-", 1.0, Value("40"), closed(4.0, 1e6), None, "Population size (nsga2) or batch size (screening, scalarised)."),
+    k("optimizer", "population", Int, "-", 1.0, Value("40"), closed(4.0, 1e5), None, "Population size (nsga2) or batch size (screening, scalarised); at most 100,000 (memory of the order of 200 bytes per member and objective, held several times over, and one journal line per generation of them)."),
     budget(k("optimizer", "max_evaluations", Int, "-", 1.0, Value("2000"), closed(1.0, 1e13), None, "Evaluation budget (may be raised when resuming)."),),
     budget(k("optimizer", "hours", Float, "h", 3600.0, Unset, pos(10000.0), None, "Wall-clock budget of one invocation of `stria run`."),),
     budget(k("optimizer", "stall_generations", Int, "-", 1.0, Unset, closed(1.0, 1e9), None, "Stop when the hypervolume has not grown for this many generations."),),
