@@ -430,13 +430,20 @@ pub fn run(path: &Path, sets: &[String], json: bool, profile: bool) -> Result<()
         profiles: profile,
         ..Options::default()
     };
-    let e = model::evaluate(&study.baseline, &study.constants, &options)
+    let p = model::plant::evaluate_plant(&study.baseline_plant(), &study.constants, &options)
         .map_err(|e| model_error(&study, e))?;
+    let e = &p.stage_evaluations[0];
     if json {
-        let text = serde_json::to_string_pretty(&e).map_err(|e| CliError::json("JSON", e))?;
+        let mut v = serde_json::to_value(e).map_err(|e| CliError::json("JSON", e))?;
+        crate::plant_sheet::add_to_json(&mut v, &p).map_err(|e| CliError::json("JSON", e))?;
+        let text = serde_json::to_string_pretty(&v).map_err(|e| CliError::json("JSON", e))?;
         println!("{text}");
     } else {
-        print!("{}", design_sheet(&study, &e));
+        let plant = crate::plant_sheet::sheet_sections(&study, &p);
+        print!(
+            "{}",
+            crate::plant_sheet::with_plant_sections(design_sheet(&study, e), &plant)
+        );
     }
     Ok(())
 }

@@ -22,6 +22,7 @@ pub mod figures;
 pub mod fit;
 pub mod fsio;
 pub mod handoff;
+pub mod plant_sheet;
 pub mod report;
 pub mod run;
 pub mod rundir;

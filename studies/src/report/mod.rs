@@ -108,7 +108,24 @@ pub fn best_few(run: &RunDir) -> Vec<(u64, String)> {
     out
 }
 
-fn front_figures(run: &RunDir, baseline: Option<&Evaluation>) -> Result<Vec<Figure>, CliError> {
+/// The study's plant with every stage unpatterned (open fraction 1), evaluated.
+fn unpatterned_plant(run: &RunDir) -> Option<model::plant::PlantEvaluation> {
+    let s = &run.study;
+    let mut plant = s.plant.plant(
+        &rundir::unpatterned(&s.baseline),
+        s.concentrate_gap_follows,
+        s.concentrate_velocity_follows,
+    );
+    for stage in &mut plant.stages {
+        stage.design.membranes.open_fraction = 1.0;
+    }
+    model::plant::evaluate_plant(&plant, &s.constants, &Options::default()).ok()
+}
+
+fn front_figures(
+    run: &RunDir,
+    baseline: Option<&model::plant::PlantEvaluation>,
+) -> Result<Vec<Figure>, CliError> {
     let objs = &run.study.objectives;
     let mut figs = Vec::new();
     // the baseline may break a constraint the front respects: say so beside the mark
@@ -447,7 +464,10 @@ pub fn build(run: &RunDir) -> Result<Report, CliError> {
         sections.push((
             "The front".to_string(),
             "Each pair of objectives; colour shows the third objective (or the active-area fraction when there are two).".to_string(),
-            front_figures(run, base_eval.as_ref())?,
+            front_figures(
+                run,
+                base_eval.as_ref().and(unpatterned_plant(run)).as_ref(),
+            )?,
         ));
     }
     if let Some(f) = hypervolume_figure(run)? {

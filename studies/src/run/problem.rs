@@ -37,7 +37,7 @@ impl Problem for StudyProblem<'_> {
     }
 
     fn evaluate(&self, x: &[f64]) -> Result<Outcome, String> {
-        let (eval, natural) = self.study.evaluate_point(x)?;
+        let (_, natural, constraints) = self.study.evaluate_outcome(x)?;
         let objectives = self
             .study
             .objectives
@@ -45,7 +45,6 @@ impl Problem for StudyProblem<'_> {
             .zip(&natural)
             .map(|(o, v)| o.to_minimised(*v))
             .collect();
-        let constraints = self.study.constraints.iter().map(|c| c.g(&eval)).collect();
         Ok(Outcome {
             objectives,
             constraints,

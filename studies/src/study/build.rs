@@ -51,13 +51,14 @@ pub fn build(raw: &RawStudy) -> Result<(Study, Vec<StudyWarning>), CliError> {
         operation,
         economics,
     };
+    let plant = super::plant::read_plant(&mut r, &baseline, baseline.water.temperature_k - 273.15)?;
     let variables = read_variables(&mut r, &baseline)?;
     let objectives: Vec<Objective> = r
         .word_list("objectives", "list")?
         .iter()
         .filter_map(|w| Objective::from_key(w))
         .collect();
-    let constraints = read_constraints(&mut r)?;
+    let constraints = read_constraints(&mut r, &plant)?;
     let optimizer = read_optimizer(&mut r, objectives.len())?;
 
     let study = Study {
@@ -71,6 +72,7 @@ pub fn build(raw: &RawStudy) -> Result<(Study, Vec<StudyWarning>), CliError> {
         objectives,
         constraints,
         optimizer,
+        plant,
         concentrate_gap_follows,
         concentrate_velocity_follows,
         resolved: r.resolved,
@@ -617,7 +619,10 @@ fn read_variables(r: &mut Reader, baseline: &Design) -> Result<Vec<DesignVariabl
     Ok(out)
 }
 
-fn read_constraints(r: &mut Reader) -> Result<Vec<Constraint>, CliError> {
+fn read_constraints(
+    r: &mut Reader,
+    plant: &super::plant::PlantSpec,
+) -> Result<Vec<Constraint>, CliError> {
     let mut out = Vec::new();
     if let Some(x) = r.float("constraints", "max_product_mol_m3")? {
         out.push(Constraint::MaxProduct(x));
@@ -627,6 +632,29 @@ fn read_constraints(r: &mut Reader) -> Result<Vec<Constraint>, CliError> {
     }
     if let Some(x) = r.float("constraints", "max_reynolds")? {
         out.push(Constraint::MaxReynolds(x));
+    }
+    if let Some(x) = r.float("constraints", "max_stack_voltage_V")? {
+        out.push(Constraint::MaxStackVoltage(x));
+    }
+    if let Some(x) = r.float("constraints", "min_water_recovery")? {
+        out.push(Constraint::MinWaterRecovery(x));
+    }
+    for key in ["max_concentrate_calcite_si", "max_concentrate_gypsum_si"] {
+        if let Some(x) = r.float("constraints", key)? {
+            if plant.analysis.is_none() {
+                return Err(r.err(
+                    "constraints",
+                    key,
+                    "a saturation-index limit needs a water analysis",
+                    "add a [water.analysis] section, or remove this constraint",
+                ));
+            }
+            out.push(if key.contains("calcite") {
+                Constraint::MaxConcentrateCalciteSi(x)
+            } else {
+                Constraint::MaxConcentrateGypsumSi(x)
+            });
+        }
     }
     Ok(out)
 }

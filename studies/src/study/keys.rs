@@ -211,7 +211,16 @@ pub const OBJECTIVES: &[&str] = &[
     "membrane_cost",
     "levelised_cost",
     "salt_removal_fraction",
+    "plant_specific_energy",
+    "plant_levelised_cost",
+    "plant_membrane_area",
+    "water_recovery",
+    "stack_voltage",
 ];
+/// Concentrate loop modes.
+pub const LOOP_MODES: &[&str] = &["once_through", "feed_and_bleed"];
+/// Most stages a plant may have.
+pub const MAX_STAGES: usize = 8;
 /// Algorithms.
 pub const ALGORITHMS: &[&str] = &["nsga2", "scalarised", "screening"];
 /// Single-objective solvers for scalarised runs.
@@ -229,6 +238,10 @@ pub const SECTIONS: &[(&str, &str)] = &[
     ("membranes", "The ion-exchange membranes and the stripe pattern."),
     ("operation", "How the stack is driven and fed."),
     ("economics", "Prices and plant figures for cost objectives."),
+    ("water.analysis", "Optional water analysis of the feed (mg/L) for the scaling screen: calcite and gypsum saturation indices of the feed and of the concentrate outlet, every ion concentrated by the model salt's concentrate factor at the feed's pH and temperature (a screening assumption)."),
+    ("stack", "Optional: the stack of the first stage (cell pairs, electrodes, rectifier, manifolds for the shunt currents) and the plant's capital beyond the membranes. Without it each stage is a single cell pair without electrodes, as the cell-pair model."),
+    ("stages.N", "Optional: stage N = 2, 3, ... in series after the first (the study's own design is stage 1); the diluate of each stage feeds the next. Each key overrides the first stage's value for this stage."),
+    ("concentrate_loop", "Optional: the concentrate stream, once-through or feed-and-bleed with a make-up and bleed that set the water recovery."),
     ("rom", "Overrides of the reduced-order-model constants (any key of the constants table)."),
     ("variables.pitch", "Design variable: stripe pitch (CSV column `pitch_m`)."),
     ("variables.open_fraction", "Design variable: open fraction (CSV column `open_fraction`)."),
@@ -289,6 +302,35 @@ pub const KEYS: &[KeySpec] = &[
     k("economics", "discount_rate_percent", Float, "%/yr", 1.0, Required, Some(Range { lo: 0.0, hi: 100.0, lo_open: false, hi_open: true }), None, "Discount rate for the capital recovery factor."),
     k("economics", "operating_hours_per_year", Float, "h/yr", 1.0, Required, closed(1.0, 8784.0), None, "Hours of operation per year."),
     k("economics", "plant_capacity_m3_day", Float, "m3/day", 1.0, Required, pos(1e8), None, "Product capacity of the whole plant."),
+    k("water.analysis", "na_mg_L", Float, "mg/L", 1.0, Required, closed(0.0, 2e5), None, "Sodium."),
+    k("water.analysis", "k_mg_L", Float, "mg/L", 1.0, Value("0.0"), closed(0.0, 2e5), None, "Potassium."),
+    k("water.analysis", "ca_mg_L", Float, "mg/L", 1.0, Required, Some(Range { lo: 0.0, hi: 2e5, lo_open: true, hi_open: false }), None, "Calcium."),
+    k("water.analysis", "mg_mg_L", Float, "mg/L", 1.0, Value("0.0"), closed(0.0, 2e5), None, "Magnesium."),
+    k("water.analysis", "cl_mg_L", Float, "mg/L", 1.0, Required, closed(0.0, 2e5), None, "Chloride."),
+    k("water.analysis", "so4_mg_L", Float, "mg/L", 1.0, Value("0.0"), closed(0.0, 2e5), None, "Sulfate as SO4."),
+    k("water.analysis", "alkalinity_mg_L_HCO3", Float, "mg/L as HCO3", 1.0, Required, Some(Range { lo: 0.0, hi: 2e5, lo_open: true, hi_open: false }), None, "Alkalinity as HCO3."),
+    k("water.analysis", "pH", Float, "-", 1.0, Required, closed(4.0, 10.0), None, "pH of the feed (the temperature is [water] temperature_C, at most 90 C)."),
+    k("stack", "cell_pairs", Int, "-", 1.0, Required, closed(1.0, 5000.0), None, "Cell pairs per stack (first stage)."),
+    k("stack", "electrode_voltage_V", Float, "V", 1.0, Value("2.5"), closed(0.0, 50.0), closed(1.5, 4.0), "Electrode compartments as one voltage (reaction potentials, overpotentials, rinse); about 2-3 V for gas-evolving electrodes, common practice. The rinse carries hydrogen, oxygen and chlorine: vent it."),
+    k("stack", "rectifier_efficiency", Float, "-", 1.0, Value("0.95"), Some(Range { lo: 0.01, hi: 1.0, lo_open: true, hi_open: false }), closed(0.85, 0.99), "DC output over AC input of the rectifier."),
+    k("stack", "manifold_diameter_mm", Float, "mm", 1e-3, Unset, closed(0.001, 1000.0), None, "Diameter of each of the four manifolds; set it to include the shunt currents (Veerman et al. 2008 equivalent circuit)."),
+    k("stack", "feed_channel_length_mm", Float, "mm", 1e-3, Derived("30 with a manifold"), closed(0.001, 1000.0), None, "Length of the feed channel from a manifold into a compartment."),
+    k("stack", "feed_channel_width_mm", Float, "mm", 1e-3, Derived("5 with a manifold"), closed(0.001, 1000.0), None, "Width of that feed channel (its depth is the compartment's gap)."),
+    k("stack", "membrane_thickness_mm", Float, "mm", 1e-3, Derived("0.15 with a manifold"), closed(0.001, 1000.0), None, "Membrane thickness (sets the cell-pair thickness, the manifold segment length)."),
+    k("stack", "electrode_price_per_m2", Float, "currency/m2", 1.0, Value("0.0"), closed(0.0, 1e6), None, "Electrode price (two per stack, each of the cell area)."),
+    k("stack", "spacer_price_per_m2", Float, "currency/m2", 1.0, Value("0.0"), closed(0.0, 1e6), None, "Spacer or gasket price (two per cell pair, each of the cell area)."),
+    k("stack", "hardware_price_per_stack", Float, "currency", 1.0, Value("0.0"), closed(0.0, 1e9), None, "End plates, frames, tie rods per stack."),
+    k("stack", "rectifier_price_per_kW", Float, "currency/kW", 1.0, Value("0.0"), closed(0.0, 1e6), None, "Rectifier price per kW of DC output."),
+    k("stack", "plant_life_years", Float, "years", 1.0, Value("20.0"), closed(0.01, 100.0), None, "Life over which everything but the membranes is annuitised."),
+    k("stages.N", "length_m", Float, "m", 1.0, Derived("the first stage's"), closed(1e-5, 20.0), closed(0.02, 3.0), "Flow-path length of this stage."),
+    k("stages.N", "gap_mm", Float, "mm", 1e-3, Derived("the first stage's"), closed(0.01, 10.0), closed(0.1, 2.0), "Diluate gap of this stage (the concentrate gap follows when it follows in [channel])."),
+    k("stages.N", "pitch_um", Float, "um", 1e-6, Derived("the first stage's"), closed(0.1, 1e5), closed(20.0, 5000.0), "Stripe pitch of this stage's membranes."),
+    k("stages.N", "open_fraction", Float, "-", 1.0, Derived("the first stage's"), closed(0.01, 1.0), closed(0.1, 1.0), "Open fraction of this stage's pattern."),
+    k("stages.N", "velocity_cm_s", Float, "cm/s", 1e-2, Derived("the first stage's"), closed(0.01, 200.0), closed(0.2, 30.0), "Mean diluate velocity of this stage (the concentrate follows when it follows in [operation])."),
+    k("stages.N", "cell_pair_voltage_V", Float, "V", 1.0, Derived("the first stage's"), pos(50.0), closed(0.05, 6.0), "Cell-pair voltage of this stage (voltage drive)."),
+    k("stages.N", "cell_pairs", Int, "-", 1.0, Derived("the first stage's"), closed(1.0, 5000.0), None, "Cell pairs per stack of this stage."),
+    k("concentrate_loop", "mode", Choice(LOOP_MODES), "-", 1.0, Value("\"once_through\""), None, None, "once_through: every stage's concentrate is fed with feed water and drained; feed_and_bleed: one recirculating loop with a make-up of feed water and an equal bleed."),
+    k("concentrate_loop", "water_recovery", Float, "-", 1.0, Derived("required with feed_and_bleed"), Some(Range { lo: 0.01, hi: 0.99, lo_open: false, hi_open: false }), closed(0.5, 0.95), "Product over plant feed (product plus bleed); sets the bleed."),
     k("rom", "constants_file", Path, "-", 1.0, Unset, None, None, "A constants file (e.g. written by `stria fit`), relative to the study file; keys given in [rom] override it."),
     k("variables.pitch", "lower_um", Float, "um", 1e-6, Required, closed(0.1, 1e5), closed(20.0, 5000.0), "Lower bound of the stripe pitch."),
     k("variables.pitch", "upper_um", Float, "um", 1e-6, Required, closed(0.1, 1e5), closed(20.0, 5000.0), "Upper bound of the stripe pitch."),
@@ -302,9 +344,13 @@ pub const KEYS: &[KeySpec] = &[
     k("variables.gap", "upper_mm", Float, "mm", 1e-3, Required, closed(0.01, 10.0), closed(0.1, 2.0), "Upper bound of the gap."),
     k("variables.length", "lower_m", Float, "m", 1.0, Required, closed(1e-5, 20.0), closed(0.02, 3.0), "Lower bound of the channel length."),
     k("variables.length", "upper_m", Float, "m", 1.0, Required, closed(1e-5, 20.0), closed(0.02, 3.0), "Upper bound of the channel length."),
-    k("objectives", "list", List(OBJECTIVES), "-", 1.0, Value("[\"salt_removal_rate\", \"specific_energy\"]"), None, None, "Objectives: salt_removal_rate (mol/(m2 s), maximised), specific_energy (kWh/m3, minimised), membrane_cost (currency per m3/day of capacity, minimised), levelised_cost (currency/m3, minimised), salt_removal_fraction (-, maximised)."),
+    k("objectives", "list", List(OBJECTIVES), "-", 1.0, Value("[\"salt_removal_rate\", \"specific_energy\"]"), None, None, "Objectives: salt_removal_rate (mol/(m2 s), maximised), specific_energy (kWh/m3, minimised), membrane_cost (currency per m3/day of capacity, minimised), levelised_cost (currency/m3, minimised), salt_removal_fraction (-, maximised); at plant level (all stages, stacks, electrodes, rectifier, concentrate loop): plant_specific_energy (kWh/m3, minimised), plant_levelised_cost (currency/m3, minimised), plant_membrane_area (m2 per m3/day, minimised), water_recovery (-, maximised), stack_voltage (V, highest of the stages, minimised)."),
     k("constraints", "max_product_mol_m3", Float, "mol/m3", 1.0, Unset, pos(6000.0), None, "Highest allowed product (diluate outlet) concentration."),
     k("constraints", "max_pressure_drop_kPa", Float, "kPa", 1e3, Unset, pos(1e4), None, "Highest allowed diluate pressure drop over the channel."),
+    k("constraints", "max_stack_voltage_V", Float, "V", 1.0, Unset, pos(1e5), None, "Highest allowed stack voltage of any stage (above 120 V DC a stack is hazardous to touch; follow local electrical codes)."),
+    k("constraints", "min_water_recovery", Float, "-", 1.0, Unset, open_unit(), None, "Lowest allowed water recovery of the plant."),
+    k("constraints", "max_concentrate_calcite_si", Float, "-", 1.0, Unset, closed(-10.0, 10.0), None, "Highest allowed calcite saturation index of the concentrate outlet (needs [water.analysis]; g = SI - limit)."),
+    k("constraints", "max_concentrate_gypsum_si", Float, "-", 1.0, Unset, closed(-10.0, 10.0), None, "Highest allowed gypsum saturation index of the concentrate outlet (needs [water.analysis]; g = SI - limit)."),
     k("constraints", "max_reynolds", Float, "-", 1.0, Unset, pos(1e6), None, "Highest allowed channel Reynolds number (laminar flow below about 2000 in an open slit)."),
     k("optimizer", "algorithm", Choice(ALGORITHMS), "-", 1.0, Value("\"nsga2\""), None, None, "nsga2: multi-objective evolutionary search; scalarised: a sweep of single-objective sub-problems; screening: a space-filling sample."),
     k("optimizer", "seed", Int, "-", 1.0, Value("1"), closed(0.0, 9.007e15), None, "Seed of every random number of the run."),
@@ -361,13 +407,31 @@ fn rom_allowed(key: &str) -> String {
         .unwrap_or_else(|| "finite".to_string())
 }
 
+/// The table's name of a section: `stages.2`, `stages.3`, ... are all `stages.N`.
+pub fn table_section(section: &str) -> &str {
+    match section.strip_prefix("stages.") {
+        Some(n) if stage_number(n).is_some() => "stages.N",
+        _ => section,
+    }
+}
+
+/// The stage number of a `stages.N` suffix: 2 to [`MAX_STAGES`].
+pub fn stage_number(suffix: &str) -> Option<usize> {
+    suffix
+        .parse::<usize>()
+        .ok()
+        .filter(|n| (2..=MAX_STAGES).contains(n) && suffix == n.to_string())
+}
+
 /// Look a key up.
 pub fn spec(section: &str, key: &str) -> Option<&'static KeySpec> {
+    let section = table_section(section);
     KEYS.iter().find(|s| s.section == section && s.key == key)
 }
 
 /// Keys of one section.
 pub fn section_keys(section: &str) -> Vec<&'static str> {
+    let section = table_section(section);
     KEYS.iter()
         .filter(|s| s.section == section)
         .map(|s| s.key)

@@ -1,6 +1,7 @@
 //! Study files: raw TOML ([`raw`]) checked into one [`Study`]; nothing downstream re-validates.
 
 pub mod keys;
+pub mod plant;
 pub mod raw;
 pub mod reader;
 pub mod search;
@@ -10,6 +11,7 @@ mod build;
 use std::fmt;
 use std::path::{Path, PathBuf};
 
+use model::plant::{evaluate_plant, Plant, PlantEvaluation};
 use model::{Design, Drive, Evaluation, Options, RomConstants};
 
 pub use reader::Resolved;
@@ -66,6 +68,8 @@ pub struct Study {
     pub constraints: Vec<Constraint>,
     /// Optimiser settings.
     pub optimizer: OptimizerSettings,
+    /// The plant: stacks, later stages, concentrate loop, water analysis.
+    pub plant: plant::PlantSpec,
     /// The concentrate gap follows the diluate gap (not given separately).
     pub concentrate_gap_follows: bool,
     /// The concentrate velocity follows the diluate velocity (not given separately).
@@ -149,33 +153,92 @@ impl Study {
             .collect()
     }
 
-    /// Evaluate the design at `x`: the evaluation and the objectives in their natural direction.
-    /// A model failure or a non-finite objective is an `Err` with the reason.
-    pub fn evaluate_point(&self, x: &[f64]) -> Result<(Evaluation, Vec<f64>), String> {
-        let design = self.design_at(x);
-        let eval = model::evaluate(&design, &self.constants, &Options::default())
+    /// The plant of the study's own design.
+    pub fn baseline_plant(&self) -> Plant {
+        self.plant.plant(
+            &self.baseline,
+            self.concentrate_gap_follows,
+            self.concentrate_velocity_follows,
+        )
+    }
+
+    /// The plant of the design at `x`.
+    pub fn plant_at(&self, x: &[f64]) -> Plant {
+        self.plant.plant(
+            &self.design_at(x),
+            self.concentrate_gap_follows,
+            self.concentrate_velocity_follows,
+        )
+    }
+
+    /// Evaluate the plant at `x` (one model evaluation per stage, more around a concentrate
+    /// loop); the first stage's evaluation is the cell pair's. A study without plant sections
+    /// is one stage of one cell pair, whose numbers are the cell-pair model's bit for bit.
+    pub fn evaluate_plant_at(
+        &self,
+        x: &[f64],
+        options: &Options,
+    ) -> Result<PlantEvaluation, model::ModelError> {
+        evaluate_plant(&self.plant_at(x), &self.constants, options)
+    }
+
+    /// Evaluate the design at `x`: the plant, the objectives in their natural directions and
+    /// the normalised constraints g (feasible when g <= 0).
+    pub fn evaluate_outcome(
+        &self,
+        x: &[f64],
+    ) -> Result<(PlantEvaluation, Vec<f64>, Vec<f64>), String> {
+        let p = self
+            .evaluate_plant_at(x, &Options::default())
             .map_err(|e| e.to_string())?;
         let mut objectives = Vec::with_capacity(self.objectives.len());
         for o in &self.objectives {
-            let v = o.value(&eval);
+            let v = o.value(&p);
             if !v.is_finite() {
                 return Err(format!("{} is not finite ({v})", o.key()));
             }
             objectives.push(v);
         }
-        Ok((eval, objectives))
+        let constraints = self.constraints.iter().map(|c| c.g(&p)).collect();
+        Ok((p, objectives, constraints))
+    }
+
+    /// Evaluate the design at `x`: the first stage's cell-pair evaluation and the objectives.
+    pub fn evaluate_point(&self, x: &[f64]) -> Result<(Evaluation, Vec<f64>), String> {
+        let (mut p, objectives, _) = self.evaluate_outcome(x)?;
+        Ok((p.stage_evaluations.swap_remove(0), objectives))
     }
 
     /// The resolved study body (every default explicit), without the fingerprint line.
     fn resolved_body(&self) -> String {
         let mut out = String::new();
+        // The table's `stages.N` stands for each stage section present, in stage order.
+        let mut sections: Vec<String> = Vec::new();
         for (section, _) in keys::SECTIONS {
+            if *section == "stages.N" {
+                let mut stages: Vec<usize> = self
+                    .resolved
+                    .iter()
+                    .filter_map(|r| r.section.strip_prefix("stages."))
+                    .filter_map(keys::stage_number)
+                    .collect();
+                stages.sort_unstable();
+                stages.dedup();
+                sections.extend(stages.iter().map(|n| format!("stages.{n}")));
+            } else {
+                sections.push(section.to_string());
+            }
+        }
+        for section in &sections {
             let items: Vec<&Resolved> = self
                 .resolved
                 .iter()
                 .filter(|r| r.section == *section)
                 .collect();
-            if items.is_empty() && section.starts_with("variables.") {
+            // Optional sections appear only when given (their presence switches a feature on).
+            let optional = section.starts_with("variables.")
+                || ["water.analysis", "stack", "concentrate_loop"].contains(&section.as_str());
+            if items.is_empty() && optional {
                 continue;
             }
             if !out.is_empty() {
@@ -184,7 +247,8 @@ impl Study {
             out.push_str(&format!("[{section}]\n"));
             // In table order, then the ROM constants in their own order.
             let mut ordered: Vec<&Resolved> = Vec::new();
-            for spec in keys::KEYS.iter().filter(|s| s.section == *section) {
+            let table = keys::table_section(section);
+            for spec in keys::KEYS.iter().filter(|s| s.section == table) {
                 if let Some(r) = items.iter().find(|r| r.key == spec.key) {
                     ordered.push(r);
                 }
@@ -200,7 +264,7 @@ impl Study {
                     Some(why) => out.push_str(&format!("# {} = {}  ({why})\n", r.key, r.literal)),
                 }
             }
-            for spec in keys::KEYS.iter().filter(|s| s.section == *section) {
+            for spec in keys::KEYS.iter().filter(|s| s.section == table) {
                 if matches!(spec.default, keys::DefaultValue::Unset)
                     && !items.iter().any(|r| r.key == spec.key)
                 {

@@ -73,6 +73,11 @@ pub fn shown_name(name: &str) -> String {
 }
 
 fn is_section(name: &str) -> bool {
+    // The table's `stages.N` stands for `stages.2`, `stages.3`, ...; it is not itself a name.
+    if name == "stages.N" {
+        return false;
+    }
+    let name = keys::table_section(name);
     SECTIONS.iter().any(|(s, _)| *s == name)
 }
 
@@ -207,6 +212,39 @@ impl RawStudy {
                 }
                 continue;
             }
+            if name == "stages" {
+                let table = item.as_table_like().ok_or_else(|| {
+                    CliError::input(
+                        file,
+                        line,
+                        "stages",
+                        "must be a table of stages",
+                        "[stages.2], [stages.3], ... sections",
+                    )
+                })?;
+                for (n, sub) in table.iter() {
+                    let sline = table
+                        .get_key_value(n)
+                        .and_then(|(k, _)| k.span())
+                        .map(|s| line_of(text, s.start))
+                        .or(line);
+                    let section = format!("stages.{}", shown_name(n));
+                    if keys::stage_number(n).is_none() {
+                        return Err(CliError::input(
+                            file,
+                            sline,
+                            section,
+                            format!("`{}` is not a stage number", shown_name(n)),
+                            format!(
+                                "[stages.2] to [stages.{}] (stage 1 is the study's own design)",
+                                keys::MAX_STAGES
+                            ),
+                        ));
+                    }
+                    raw.read_section(text, &section, sub, sline)?;
+                }
+                continue;
+            }
             if !is_section(name) {
                 let name = &shown_name(name);
                 if item.is_value() {
@@ -272,6 +310,11 @@ impl RawStudy {
                 .map(|s| line_of(text, s.start))
                 .or(line);
             let field = format!("{section}.{}", shown_name(key));
+            let nested = format!("{section}.{key}");
+            if sub.is_table_like() && is_section(&nested) {
+                self.read_section(text, &nested, sub, kline)?;
+                continue;
+            }
             if !valid.iter().any(|v| v == key) {
                 let (msg, allowed) = unknown_key_help(section, key);
                 return Err(CliError::input(&self.file, kline, field, msg, allowed));

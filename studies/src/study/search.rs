@@ -1,6 +1,7 @@
 //! What a study searches: design variables, objectives, constraints and optimiser settings.
 
-use model::{Design, Drive, Evaluation};
+use model::plant::PlantEvaluation;
+use model::{Design, Drive};
 use serde::Serialize;
 
 /// A design quantity that a study can vary.
@@ -119,6 +120,16 @@ pub enum Objective {
     LevelisedCost,
     /// Salt removal fraction, -, maximised.
     SaltRemovalFraction,
+    /// Plant specific energy (all stages, electrodes, shunts, rectifier, pumps), kWh/m3, minimised.
+    PlantSpecificEnergy,
+    /// Plant levelised cost of water, currency/m3, minimised.
+    PlantLevelisedCost,
+    /// Membrane area of all stages per capacity, m2/(m3/day), minimised.
+    PlantMembraneArea,
+    /// Water recovery of the plant, -, maximised.
+    WaterRecovery,
+    /// Highest stack voltage of the stages, V, minimised.
+    StackVoltage,
 }
 
 impl Objective {
@@ -130,6 +141,11 @@ impl Objective {
             "membrane_cost" => Objective::MembraneCost,
             "levelised_cost" => Objective::LevelisedCost,
             "salt_removal_fraction" => Objective::SaltRemovalFraction,
+            "plant_specific_energy" => Objective::PlantSpecificEnergy,
+            "plant_levelised_cost" => Objective::PlantLevelisedCost,
+            "plant_membrane_area" => Objective::PlantMembraneArea,
+            "water_recovery" => Objective::WaterRecovery,
+            "stack_voltage" => Objective::StackVoltage,
             _ => return None,
         })
     }
@@ -142,6 +158,11 @@ impl Objective {
             Objective::MembraneCost => "membrane_cost",
             Objective::LevelisedCost => "levelised_cost",
             Objective::SaltRemovalFraction => "salt_removal_fraction",
+            Objective::PlantSpecificEnergy => "plant_specific_energy",
+            Objective::PlantLevelisedCost => "plant_levelised_cost",
+            Objective::PlantMembraneArea => "plant_membrane_area",
+            Objective::WaterRecovery => "water_recovery",
+            Objective::StackVoltage => "stack_voltage",
         }
     }
 
@@ -152,7 +173,11 @@ impl Objective {
             Objective::SpecificEnergy => "kWh/m3",
             Objective::MembraneCost => "currency/(m3/day)",
             Objective::LevelisedCost => "currency/m3",
-            Objective::SaltRemovalFraction => "-",
+            Objective::SaltRemovalFraction | Objective::WaterRecovery => "-",
+            Objective::PlantSpecificEnergy => "kWh/m3",
+            Objective::PlantLevelisedCost => "currency/m3",
+            Objective::PlantMembraneArea => "m2/(m3/day)",
+            Objective::StackVoltage => "V",
         }
     }
 
@@ -164,6 +189,11 @@ impl Objective {
             Objective::MembraneCost => "membrane_cost_per_m3_day",
             Objective::LevelisedCost => "levelised_cost_per_m3",
             Objective::SaltRemovalFraction => "salt_removal_fraction",
+            Objective::PlantSpecificEnergy => "plant_specific_energy_kWh_m3",
+            Objective::PlantLevelisedCost => "plant_levelised_cost_per_m3",
+            Objective::PlantMembraneArea => "plant_membrane_area_m2_per_m3_day",
+            Objective::WaterRecovery => "water_recovery",
+            Objective::StackVoltage => "stack_voltage_V",
         }
     }
 
@@ -171,7 +201,7 @@ impl Objective {
     pub fn maximise(self) -> bool {
         matches!(
             self,
-            Objective::SaltRemovalRate | Objective::SaltRemovalFraction
+            Objective::SaltRemovalRate | Objective::SaltRemovalFraction | Objective::WaterRecovery
         )
     }
 
@@ -184,14 +214,21 @@ impl Objective {
         }
     }
 
-    /// Value in its natural direction.
-    pub fn value(self, e: &Evaluation) -> f64 {
+    /// Value in its natural direction (cell-pair objectives from the first stage).
+    pub fn value(self, p: &PlantEvaluation) -> f64 {
+        let e = &p.stage_evaluations[0];
+        let plant = &p.plant;
         match self {
             Objective::SaltRemovalRate => e.economics.salt_removal_rate_mol_m2_s,
             Objective::SpecificEnergy => e.performance.specific_energy_kWh_m3,
             Objective::MembraneCost => e.economics.membrane_cost_per_m3_day,
             Objective::LevelisedCost => e.economics.levelised_cost_per_m3,
             Objective::SaltRemovalFraction => e.performance.salt_removal_fraction,
+            Objective::PlantSpecificEnergy => plant.specific_energy_kWh_m3,
+            Objective::PlantLevelisedCost => plant.levelised_cost_per_m3,
+            Objective::PlantMembraneArea => plant.membrane_area_m2_per_m3_day,
+            Objective::WaterRecovery => plant.water_recovery,
+            Objective::StackVoltage => max_stack_voltage(p),
         }
     }
 
@@ -214,6 +251,23 @@ pub enum Constraint {
     MaxPressureDrop(f64),
     /// Reynolds number at most this.
     MaxReynolds(f64),
+    /// Highest stack voltage of the stages at most this, V.
+    MaxStackVoltage(f64),
+    /// Plant water recovery at least this.
+    MinWaterRecovery(f64),
+    /// Concentrate-outlet calcite saturation index at most this.
+    MaxConcentrateCalciteSi(f64),
+    /// Concentrate-outlet gypsum saturation index at most this.
+    MaxConcentrateGypsumSi(f64),
+}
+
+/// The highest stack voltage among the stages, V.
+pub fn max_stack_voltage(p: &PlantEvaluation) -> f64 {
+    p.plant
+        .stages
+        .iter()
+        .map(|s| s.stack.stack_voltage_V)
+        .fold(f64::NEG_INFINITY, f64::max)
 }
 
 impl Constraint {
@@ -223,6 +277,10 @@ impl Constraint {
             Constraint::MaxProduct(_) => "max_product_mol_m3",
             Constraint::MaxPressureDrop(_) => "max_pressure_drop_kPa",
             Constraint::MaxReynolds(_) => "max_reynolds",
+            Constraint::MaxStackVoltage(_) => "max_stack_voltage_V",
+            Constraint::MinWaterRecovery(_) => "min_water_recovery",
+            Constraint::MaxConcentrateCalciteSi(_) => "max_concentrate_calcite_si",
+            Constraint::MaxConcentrateGypsumSi(_) => "max_concentrate_gypsum_si",
         }
     }
 
@@ -232,6 +290,10 @@ impl Constraint {
             Constraint::MaxProduct(_) => "g_product_concentration",
             Constraint::MaxPressureDrop(_) => "g_pressure_drop",
             Constraint::MaxReynolds(_) => "g_reynolds",
+            Constraint::MaxStackVoltage(_) => "g_stack_voltage",
+            Constraint::MinWaterRecovery(_) => "g_water_recovery",
+            Constraint::MaxConcentrateCalciteSi(_) => "g_concentrate_calcite_si",
+            Constraint::MaxConcentrateGypsumSi(_) => "g_concentrate_gypsum_si",
         }
     }
 
@@ -240,23 +302,39 @@ impl Constraint {
         match self {
             Constraint::MaxProduct(v)
             | Constraint::MaxPressureDrop(v)
-            | Constraint::MaxReynolds(v) => v,
+            | Constraint::MaxReynolds(v)
+            | Constraint::MaxStackVoltage(v)
+            | Constraint::MinWaterRecovery(v)
+            | Constraint::MaxConcentrateCalciteSi(v)
+            | Constraint::MaxConcentrateGypsumSi(v) => v,
         }
     }
 
-    /// The constrained quantity of an evaluation, SI.
-    pub fn quantity(self, e: &Evaluation) -> f64 {
+    /// The constrained quantity of an evaluation, SI (the product is the plant's).
+    pub fn quantity(self, p: &PlantEvaluation) -> f64 {
+        let e = &p.stage_evaluations[0];
+        let si = |f: fn(&model::plant::ScalingOut) -> f64| p.scaling.as_ref().map_or(f64::NAN, f);
         match self {
-            Constraint::MaxProduct(_) => e.performance.outlet_concentration_mol_m3,
+            Constraint::MaxProduct(_) => p.plant.product_concentration_mol_m3,
+            Constraint::MaxStackVoltage(_) => max_stack_voltage(p),
+            Constraint::MinWaterRecovery(_) => p.plant.water_recovery,
+            Constraint::MaxConcentrateCalciteSi(_) => si(|s| s.concentrate_calcite_si),
+            Constraint::MaxConcentrateGypsumSi(_) => si(|s| s.concentrate_gypsum_si),
             Constraint::MaxPressureDrop(_) => e.hydraulics.pressure_drop_Pa,
             Constraint::MaxReynolds(_) => e.hydraulics.reynolds,
         }
     }
 
-    /// Normalised g = quantity / limit - 1 (g <= 0 feasible), so violations of different
-    /// constraints are comparable.
-    pub fn g(self, e: &Evaluation) -> f64 {
-        self.quantity(e) / self.limit() - 1.0
+    /// Normalised g (g <= 0 feasible), so violations of different constraints are comparable:
+    /// quantity / limit - 1 for an upper limit, 1 - quantity / limit for a lower one, and
+    /// SI - limit for a saturation index (already a logarithm; its limit may be 0 or negative).
+    pub fn g(self, p: &PlantEvaluation) -> f64 {
+        let q = self.quantity(p);
+        match self {
+            Constraint::MinWaterRecovery(l) => 1.0 - q / l,
+            Constraint::MaxConcentrateCalciteSi(l) | Constraint::MaxConcentrateGypsumSi(l) => q - l,
+            _ => q / self.limit() - 1.0,
+        }
     }
 }
 
