@@ -449,8 +449,12 @@ pub fn closest<'a>(word: &str, candidates: impl IntoIterator<Item = &'a str>) ->
             .copied()
             .filter(|c| c.to_lowercase().contains(&lower))
             .collect();
-        if containing.len() == 1 {
-            return Some(containing[0]);
+        // Of several (`energy` in `specific_energy` and `plant_specific_energy`), the shortest
+        // when it is the only one that short.
+        if let Some(&shortest) = containing.iter().min_by_key(|c| c.len()) {
+            if containing.iter().filter(|c| c.len() == shortest.len()).count() == 1 {
+                return Some(shortest);
+            }
         }
     }
     let mut best: Option<(&str, f64)> = None;
