@@ -452,7 +452,12 @@ pub fn closest<'a>(word: &str, candidates: impl IntoIterator<Item = &'a str>) ->
         // Of several (`energy` in `specific_energy` and `plant_specific_energy`), the shortest
         // when it is the only one that short.
         if let Some(&shortest) = containing.iter().min_by_key(|c| c.len()) {
-            if containing.iter().filter(|c| c.len() == shortest.len()).count() == 1 {
+            if containing
+                .iter()
+                .filter(|c| c.len() == shortest.len())
+                .count()
+                == 1
+            {
                 return Some(shortest);
             }
         }
