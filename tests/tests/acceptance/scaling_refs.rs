@@ -2,9 +2,9 @@
 //! of waters from fresh to strongly brackish, and of their concentrates, within 0.1.
 //!
 //! Source: PHREEQC 3 through phreeqpython (PyPI, installed by `.ci/requirements.txt`) with its
-//! `phreeqc.dat` database, driven by `tests/scripts/phreeqc_si.py`. The check fails when python3
-//! or phreeqpython is missing; a developer without them opts out with `STRIA_SKIP_PHREEQC=1`
-//! (DEVELOPERS.md).
+//! `phreeqc.dat` database, driven by `tests/scripts/phreeqc_si.py` through `python_refs`. The
+//! check fails when python3 or phreeqpython is missing; a developer without them opts out with
+//! `STRIA_SKIP_PYTHON_REFS=1` (DEVELOPERS.md).
 
 use model::scaling::{saturation_indices, WaterAnalysis};
 
@@ -78,12 +78,9 @@ fn analyses() -> Vec<WaterAnalysis> {
     out
 }
 
-/// PHREEQC's (calcite SI, gypsum SI, ionic strength) of each analysis, or the reason it could
-/// not be had.
-fn phreeqc(ws: &[WaterAnalysis]) -> Result<Vec<[f64; 3]>, String> {
-    use std::io::Write;
-    use std::process::{Command, Stdio};
-    let script = concat!(env!("CARGO_MANIFEST_DIR"), "/scripts/phreeqc_si.py");
+/// PHREEQC's (calcite SI, gypsum SI, ionic strength) of each analysis; None when the developer
+/// opted out of the python cross-checks.
+fn phreeqc(ws: &[WaterAnalysis]) -> Option<Vec<[f64; 3]>> {
     let input: Vec<serde_json::Value> = ws
         .iter()
         .map(|w| {
@@ -94,43 +91,21 @@ fn phreeqc(ws: &[WaterAnalysis]) -> Result<Vec<[f64; 3]>, String> {
             })
         })
         .collect();
-    let mut child = Command::new("python3")
-        .arg(script)
-        .stdin(Stdio::piped())
-        .stdout(Stdio::piped())
-        .stderr(Stdio::piped())
-        .spawn()
-        .map_err(|e| format!("cannot start python3: {e}"))?;
-    child
-        .stdin
-        .take()
-        .ok_or("no stdin")?
-        .write_all(serde_json::Value::from(input).to_string().as_bytes())
-        .map_err(|e| e.to_string())?;
-    let out = child.wait_with_output().map_err(|e| e.to_string())?;
-    if !out.status.success() {
-        return Err(format!(
-            "{script} failed: {}",
-            String::from_utf8_lossy(&out.stderr).trim()
-        ));
-    }
-    serde_json::from_slice(&out.stdout).map_err(|e| format!("{script} output: {e}"))
+    let out = crate::python_refs::run(
+        "phreeqpython",
+        include_str!("../../scripts/phreeqc_si.py"),
+        &serde_json::Value::from(input).to_string(),
+    )?;
+    Some(serde_json::from_str(&out).expect("phreeqc_si.py writes a JSON list"))
 }
 
 #[test]
 fn saturation_indices_match_phreeqc() {
     // Source: PHREEQC 3 via phreeqpython, phreeqc.dat (see the module docs).
-    if std::env::var_os("STRIA_SKIP_PHREEQC").is_some() {
-        println!("note: STRIA_SKIP_PHREEQC is set; PHREEQC cross-check skipped");
-        return;
-    }
     let ws = analyses();
-    let theirs = phreeqc(&ws).unwrap_or_else(|e| {
-        panic!(
-            "PHREEQC cross-check needs python3 with phreeqpython \
-             (pip install -r .ci/requirements.txt), or STRIA_SKIP_PHREEQC=1 to opt out: {e}"
-        )
-    });
+    let Some(theirs) = phreeqc(&ws) else {
+        return;
+    };
     assert_eq!(theirs.len(), ws.len());
     let mut worst: f64 = 0.0;
     let mut sum = 0.0;
