@@ -420,8 +420,15 @@ pub fn model_error(study: &Study, e: ModelError) -> CliError {
     }
 }
 
-/// Run `stria eval`.
-pub fn run(path: &Path, sets: &[String], json: bool, profile: bool) -> Result<(), CliError> {
+/// Run `stria eval`; `samples` = (draws, seed) adds the uncertainty of the outputs
+/// ([`crate::uncertainty`]).
+pub fn run(
+    path: &Path,
+    sets: &[String],
+    json: bool,
+    profile: bool,
+    samples: Option<(usize, Option<u64>)>,
+) -> Result<(), CliError> {
     let (study, warnings) = Study::load_with(path, sets)?;
     for w in &warnings {
         eprintln!("{w}");
@@ -433,17 +440,30 @@ pub fn run(path: &Path, sets: &[String], json: bool, profile: bool) -> Result<()
     let p = model::plant::evaluate_plant(&study.baseline_plant(), &study.constants, &options)
         .map_err(|e| model_error(&study, e))?;
     let e = &p.stage_evaluations[0];
+    let uncertainty = crate::uncertainty::for_eval(&study, samples)?;
     if json {
         let mut v = serde_json::to_value(e).map_err(|e| CliError::json("JSON", e))?;
         crate::plant_sheet::add_to_json(&mut v, &p).map_err(|e| CliError::json("JSON", e))?;
+        if let (Some(u), Some(map)) = (&uncertainty, v.as_object_mut()) {
+            let u = serde_json::to_value(u).map_err(|e| CliError::json("JSON", e))?;
+            map.insert("uncertainty".into(), u);
+        }
         let text = serde_json::to_string_pretty(&v).map_err(|e| CliError::json("JSON", e))?;
         println!("{text}");
     } else {
         let plant = crate::plant_sheet::sheet_sections(&study, &p);
-        print!(
-            "{}",
-            crate::plant_sheet::with_plant_sections(design_sheet(&study, e), &plant)
-        );
+        let sheet = crate::plant_sheet::with_plant_sections(design_sheet(&study, e), &plant);
+        match &uncertainty {
+            // The uncertainty section goes before the closing caution.
+            Some(u) => {
+                let section = crate::uncertainty::sheet_section(u, &study.currency);
+                match sheet.rfind("\n\n") {
+                    Some(at) => print!("{}{section}{}", &sheet[..at + 1], &sheet[at + 1..]),
+                    None => print!("{sheet}{section}"),
+                }
+            }
+            None => print!("{sheet}"),
+        }
     }
     Ok(())
 }

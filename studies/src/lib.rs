@@ -27,3 +27,4 @@ pub mod report;
 pub mod run;
 pub mod rundir;
 pub mod study;
+pub mod uncertainty;

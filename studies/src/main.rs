@@ -40,6 +40,13 @@ enum Command {
         /// Add the profiles along the channel.
         #[arg(long)]
         profile: bool,
+        /// Also evaluate N seeded draws of the uncertain ROM constants and give the 5th,
+        /// 50th and 95th percentiles of each output.
+        #[arg(long, value_name = "N")]
+        samples: Option<usize>,
+        /// Seed of the draws (default: the study's optimizer.seed).
+        #[arg(long, requires = "samples")]
+        seed: Option<u64>,
     },
     /// Run the study's optimisation; running again on the same directory resumes. Ctrl-C,
     /// SIGTERM or SIGHUP pause it at the end of the generation. Exit 0 finished, 75 paused
@@ -165,7 +172,10 @@ fn dispatch(cli: Cli) -> Result<ExitCode, CliError> {
             sets,
             json,
             profile,
-        } => studies::eval::run(&study, &sets, json, profile).map(|()| ExitCode::SUCCESS),
+            samples,
+            seed,
+        } => studies::eval::run(&study, &sets, json, profile, samples.map(|n| (n, seed)))
+            .map(|()| ExitCode::SUCCESS),
         Command::Run {
             study,
             out,
