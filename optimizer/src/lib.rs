@@ -24,6 +24,7 @@ pub mod archive;
 pub mod doe;
 pub mod dominance;
 pub mod indicators;
+pub mod mcmc;
 pub mod nsga2;
 pub mod problem;
 pub mod problems;
