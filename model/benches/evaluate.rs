@@ -1,5 +1,6 @@
 //! One full along-channel evaluation of the demo design (Marlow Flats, Well 3; invented, for
 //! the demo only) at the default tolerance. Target: 50,000 evaluations/s on one core.
+#![allow(missing_docs)] // criterion_group! generates an undocumented public function
 use criterion::{black_box, criterion_group, criterion_main, Criterion};
 use model::{evaluate, Design, Options, RomConstants};
 

@@ -21,6 +21,7 @@ fn run(d: &Design, tol: f64) -> Evaluation {
     evaluate(d, &RomConstants::default(), &o).unwrap()
 }
 
+#[allow(clippy::float_cmp)] // exact on purpose: the first tolerance of the list, the very value
 fn main() {
     let tols = [1e-7, 2e-7, 3e-7, 5e-7, 1e-6];
     let mut demo_low = Design::demo();

@@ -313,6 +313,7 @@ impl Cell {
 
     /// Bracketed Newton solve of the balance in the voltage of `prim`, inverting `sec`.
     /// Returns (v_prim, v_sec, i, di/dv_prim, di/dv_sec).
+    #[allow(clippy::float_cmp)] // exact on purpose: the bracket end is the very point already solved, not a computed neighbour
     fn solve_with(
         &self,
         p: &Point,

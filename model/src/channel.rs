@@ -331,6 +331,7 @@ impl Rhs<'_> {
         }
     }
 
+    #[allow(clippy::float_cmp)] // exact on purpose: the history is keyed by the exact s of a solved point
     fn point(&mut self, s: f64, c_d: f64) -> PointSolution {
         let cell = self.cell;
         let s = s.max(1e-4);
@@ -796,6 +797,7 @@ pub(crate) enum Shot {
 /// the residual function (its errors pass through, `Shot::Root` included). Returns the root
 /// and, when it was one of the integrations made, that integration's result (so the caller
 /// need not repeat it).
+#[allow(clippy::float_cmp)] // exact on purpose: the root is one of the evaluated points, found by its exact value
 pub(crate) fn outer_search(
     mut at: impl FnMut(f64) -> Result<(f64, ChannelResult), ModelError>,
     close_enough: impl Fn(f64) -> f64,
@@ -896,6 +898,7 @@ pub fn integrate(
 }
 
 #[cfg(test)]
+#[allow(clippy::float_cmp)] // tests check exact values the code sets or copies
 mod tests {
     use super::*;
 

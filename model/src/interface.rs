@@ -218,6 +218,7 @@ impl Surface {
     /// The layer law on this surface for a layer of thickness `delta_m` whose homogeneous
     /// Peers limit is `i_lim` (A/m^2).
     #[inline]
+    #[allow(clippy::float_cmp)] // exact on purpose: n = 1 exactly selects the closed form; any other value takes the general one
     pub fn layer(&self, i_lim: f64, delta_m: f64) -> Layer {
         let k = &self.k;
         let f = self.open_fraction;
@@ -381,6 +382,7 @@ impl Layer {
 
     /// Overlimiting (electroconvective) current density at `v`, A/m^2 (0 at or below onset).
     #[inline]
+    #[allow(clippy::float_cmp)] // exact on purpose: n = 1 exactly selects the closed form; any other value takes the general one
     pub fn overlimiting(&self, v: f64) -> f64 {
         if v <= self.v_c {
             return 0.0;
@@ -395,6 +397,7 @@ impl Layer {
 
     /// Current density and its derivative di/dv at layer voltage `v` (thermal units).
     #[inline]
+    #[allow(clippy::float_cmp)] // exact on purpose: n = 1 exactly selects the closed form; any other value takes the general one
     pub fn current(&self, v: f64) -> (f64, f64) {
         let e = (-0.5 * v).exp();
         let mut i = self.i_het * (1.0 - e);
@@ -420,6 +423,7 @@ impl Layer {
     /// above onset a bracketed Newton solve on [v_c, v_hi], with v_hi from the lower bound
     /// i >= i_onset + i_lim (g/alpha_0) min(alpha) (v - v_c)^n. Infinite when the current
     /// cannot be carried (g = 0 and i >= i_lim,het).
+    #[allow(clippy::float_cmp)] // exact on purpose: an exact zero amplitude and n = 1 select the closed form
     pub fn voltage(&self, i: f64, guess: f64) -> (f64, f64) {
         if i <= 0.0 {
             return (0.0, 0.5 * self.i_het);

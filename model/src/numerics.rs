@@ -97,6 +97,7 @@ pub fn erfc(x: f64) -> f64 {
 /// `kinked(x, next)` says that the step from x to next crosses a kink of `f` (a jump of the
 /// derivative: the curvature measured on one side says nothing of the other). Returns the
 /// root and the number of function calls.
+#[allow(clippy::float_cmp)] // exact on purpose: a repeated abscissa, bit for bit, would divide by zero
 pub fn newton_bracketed(
     mut f: impl FnMut(f64) -> (f64, f64),
     mut lo: f64,
@@ -160,6 +161,7 @@ pub fn newton_bracketed(
 /// Inverse quadratic interpolation with bisection safeguards; stops when the bracket is below
 /// `tol` (absolute). Returns the root, or None when the values do not bracket a root or `f`
 /// fails (returns Err), in which case the error is passed on.
+#[allow(clippy::float_cmp)] // exact on purpose: a degenerate bracket (the same point twice) switches to bisection
 pub fn brent<E>(
     mut f: impl FnMut(f64) -> Result<f64, E>,
     mut a: f64,
@@ -248,6 +250,7 @@ pub fn brent<E>(
 /// the root (x within `tol`); None when Brent finds no sign change.
 // The supplier closures take the function itself, so their type spells it out.
 #[allow(clippy::type_complexity)]
+#[allow(clippy::float_cmp)] // exact on purpose: a step that lands back on the bracket end, bit for bit, is refused
 pub fn secant_then_brent<E>(
     f: &mut dyn FnMut(f64) -> Result<f64, E>,
     mut pts: Vec<(f64, f64)>,
@@ -300,6 +303,7 @@ pub fn secant_then_brent<E>(
 }
 
 #[cfg(test)]
+#[allow(clippy::float_cmp)] // erfc(0) = 1 exactly
 mod tests {
     use super::*;
 

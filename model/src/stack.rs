@@ -418,6 +418,7 @@ pub fn warnings(r: &StackResult) -> Vec<crate::output::Warning> {
 }
 
 #[cfg(test)]
+#[allow(clippy::float_cmp)] // sums of exactly representable values
 mod tests {
     use super::*;
 

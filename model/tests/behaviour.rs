@@ -1,6 +1,7 @@
 //! Behaviour of the public API: validity warnings (docs/physics.md#validity), input errors, the
 //! current-voltage curve, profiles, the JSON schema of `stria eval --json`, and the
 //! convergence of the outlet in the integration tolerance.
+#![allow(clippy::float_cmp)] // defaults and exact zeros are compared with the literals they are
 
 mod support;
 

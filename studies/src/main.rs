@@ -1,6 +1,9 @@
 //! `stria`: the command line of stria. Parses arguments and dispatches to the library; every
 //! failure becomes one message on stderr and an exit code (0 ok, 1 runtime failure, 2 bad input,
 //! 75 a run paused before its end and resumable: `studies::run::EXIT_PAUSED`).
+// The doc comments of the commands are clap's help text, where `[slurm]` names a study-file
+// section and `<study file name>` a placeholder, neither a link nor HTML.
+#![allow(rustdoc::broken_intra_doc_links, rustdoc::invalid_html_tags)]
 
 use std::path::PathBuf;
 use std::process::ExitCode;

@@ -5,6 +5,7 @@
 //!
 //! Everything runs in-process with a fixed proptest seed and no failure-persistence files; the
 //! last test spawns the binary on a few shapes found here to confirm exit code 2 and no panic.
+#![allow(clippy::float_cmp)] // values read back from the literals they were written as
 
 use std::panic::{catch_unwind, AssertUnwindSafe};
 use std::path::{Path, PathBuf};

@@ -1,7 +1,7 @@
 //! SVG figures through `plotters` (SVG backend only, no font features: text goes into the SVG
 //! as `<text>` elements and the viewer picks the font, so nothing needs system fonts). Shared
 //! by the report, the hand-off cards and the fit; charts here, the membrane pattern drawn to
-//! scale (and the window's stripes) in [`pattern`].
+//! scale (and the window's stripes) in [`mod@pattern`].
 
 pub mod pattern;
 

@@ -3,7 +3,7 @@
 //! Each generation, in this order: evaluation rows appended (fsync), history row appended
 //! (fsync), then one line appended to journal.jsonl (fsync): the generation's evaluations,
 //! exactly, and the byte lengths of the two CSV files after it. That line is the commit
-//! point. Every [`snapshot_every`] (and at the end) the whole optimiser state is written to
+//! point. Every `snapshot_every()` (and at the end) the whole optimiser state is written to
 //! checkpoint.json atomically and the journal is emptied; front.csv and summary.json are
 //! refreshed every few seconds. A run killed at any instant resumes from the snapshot,
 //! replays the journalled generations (the optimiser draws the same designs from the same

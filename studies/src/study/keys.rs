@@ -542,6 +542,7 @@ pub fn reference_markdown() -> String {
 }
 
 #[cfg(test)]
+#[allow(clippy::float_cmp)] // conversion factors are literals of the table
 mod tests {
     use super::*;
 

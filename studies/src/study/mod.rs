@@ -355,6 +355,7 @@ pub fn read_fingerprint(text: &str) -> Option<String> {
 }
 
 #[cfg(test)]
+#[allow(clippy::float_cmp)] // values parsed from literals and scaled by exact factors
 mod tests {
     use super::*;
 

@@ -1,6 +1,7 @@
 //! Acceptance checks of the physics model against outside references (see
 //! docs/references.md). Every check names its source beside it; "from memory" values
 //! carry wide tolerances and say so; "common practice" marks a fact of the trade.
+#![allow(clippy::float_cmp)] // exact zeros and literal targets, compared as the values they are
 
 use model::constants::{RomConstants, FARADAY, GAS_CONSTANT, REFERENCE_LAYER_VOLTAGE};
 use model::energy::{minimum_work, J_PER_KWH};
