@@ -3,7 +3,7 @@
 use std::path::{Path, PathBuf};
 
 use crate::error::CliError;
-use crate::study::Study;
+use crate::study::{read_fingerprint, Study};
 
 /// One row of `front.csv`: its id, and every column as written and as a number.
 #[derive(Debug, Clone, PartialEq)]
@@ -83,16 +83,30 @@ fn missing(dir: &Path, what: &str) -> CliError {
 type Table = (Vec<String>, Vec<(usize, Vec<String>)>);
 
 /// Read a CSV table with a header.
+/// Largest front.csv or history.csv read (1 GiB).
+pub const TABLE_MAX_BYTES: u64 = 1 << 30;
+
+/// Largest magnitude of a number in front.csv that is drawn or handed off: no quantity the
+/// run writes comes near it, so a larger one (or NaN, infinity) is damage or an edit.
+pub const FRONT_VALUE_MAX: f64 = 1e15;
+
 fn read_table(path: &Path) -> Result<Table, CliError> {
-    let text = std::fs::read_to_string(path).map_err(|e| {
+    let text = crate::fsio::read_input(path, TABLE_MAX_BYTES).map_err(|e| {
         CliError::input(
             path,
             None,
             "(file)",
             format!("cannot be read: {e}"),
-            "a readable CSV file",
+            format!(
+                "a readable regular CSV file of at most {}",
+                crate::fsio::size_words(TABLE_MAX_BYTES)
+            ),
         )
     })?;
+    table_of(path, &text)
+}
+
+fn table_of(path: &Path, text: &str) -> Result<Table, CliError> {
     let mut rdr = csv::ReaderBuilder::new().from_reader(text.as_bytes());
     let bad = |line: Option<usize>, e: csv::Error| {
         CliError::input(
@@ -141,10 +155,26 @@ pub fn read_front(path: &Path) -> Result<Front, CliError> {
                 "a whole number",
             )
         })?;
-        let values = raw
+        let values: Vec<f64> = raw
             .iter()
             .map(|s| s.parse::<f64>().unwrap_or(f64::NAN))
             .collect();
+        // A number that is not finite, or absurdly large, cannot be drawn or handed off:
+        // the row is left out, with a note (blank cells, such as an absent wavelength, are
+        // not numbers and stay).
+        let absurd = raw
+            .iter()
+            .zip(&values)
+            .position(|(t, v)| t.parse::<f64>().is_ok() && !(v.abs() <= FRONT_VALUE_MAX));
+        if let Some(k) = absurd {
+            eprintln!(
+                "warning: {}:{line}: {}: `{}` is not a finite number of at most {FRONT_VALUE_MAX:e} in magnitude; design {id} is left out",
+                path.display(),
+                columns.get(k).map_or("?", String::as_str),
+                raw[k]
+            );
+            continue;
+        }
         out.push(FrontRow {
             id,
             line,
@@ -161,7 +191,25 @@ pub fn read_history(path: &Path) -> Result<Vec<HistoryRow>, CliError> {
     if !path.exists() {
         return Ok(Vec::new());
     }
-    let (columns, rows) = read_table(path)?;
+    let text = crate::fsio::read_input(path, TABLE_MAX_BYTES).map_err(|e| {
+        CliError::input(
+            path,
+            None,
+            "(file)",
+            format!("cannot be read: {e}"),
+            format!(
+                "a readable regular CSV file of at most {}",
+                crate::fsio::size_words(TABLE_MAX_BYTES)
+            ),
+        )
+    })?;
+    // A run appends one whole line per generation; a last line without its newline is an
+    // append cut short by a kill (the resume cuts it too): left out.
+    let whole = match text.rfind('\n') {
+        Some(i) => &text[..=i],
+        None => "",
+    };
+    let (columns, rows) = table_of(path, whole)?;
     let idx = |name: &str| -> Result<usize, CliError> {
         columns.iter().position(|c| c == name).ok_or_else(|| {
             CliError::input(
@@ -209,6 +257,26 @@ pub fn read(dir: &Path) -> Result<RunDir, CliError> {
         return Err(missing(dir, "study.toml"));
     }
     let (study, _) = Study::load(&study_path)?;
+    // The run wrote its fingerprint on the first line; a study.toml edited since describes
+    // another study than the one the front belongs to.
+    let text = crate::fsio::read_input(&study_path, crate::fsio::STUDY_FILE_MAX_BYTES)
+        .map_err(|e| crate::error::io_error("read", &study_path, e))?;
+    let computed = study.fingerprint();
+    match read_fingerprint(&text) {
+        Some(recorded) if recorded == computed => {}
+        recorded => {
+            return Err(CliError::input(
+                &study_path,
+                Some(1),
+                "# fingerprint",
+                match recorded {
+                    Some(r) => format!("the run recorded fingerprint {r}, but the file's keys now give {computed}: it was edited after the run, so its designs and cards would not be the run's"),
+                    None => "no fingerprint line: not the study.toml that `stria run` writes".to_string(),
+                },
+                "the study.toml the run wrote, unchanged (copy the study elsewhere to change it and run it again)",
+            ));
+        }
+    }
     let front_path = dir.join("front.csv");
     if !front_path.exists() {
         return Err(missing(dir, "front.csv"));

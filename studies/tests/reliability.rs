@@ -384,3 +384,69 @@ fn the_journal_is_snapshot_by_size_too() {
         "no snapshot after the start"
     );
 }
+
+/// A finished run of 64 evaluations in `dir/r`, with its study.
+fn finished_run(dir: &Path) -> (PathBuf, PathBuf) {
+    let study = small_study(dir, 64);
+    let out = dir.join("r");
+    run_ok(&study, &out, &[]);
+    (study, out)
+}
+
+#[test]
+fn handoff_refuses_a_study_toml_edited_after_the_run() {
+    // Audit item 6: `handoff` used a hand-edited study.toml without checking its
+    // fingerprint, so the cards described another study than the run's designs.
+    let dir = tempfile::tempdir().unwrap();
+    let (_, out) = finished_run(dir.path());
+    let front = std::fs::read_to_string(out.join("front.csv")).unwrap();
+    let id = front
+        .lines()
+        .nth(1)
+        .unwrap()
+        .split(',')
+        .next()
+        .unwrap()
+        .to_string();
+    let path = out.join("study.toml");
+    let text = std::fs::read_to_string(&path).unwrap();
+    let at = text.find("gap_mm = ").expect("a gap in the resolved study");
+    let end = at + text[at..].find('\n').unwrap();
+    let edited = format!("{}gap_mm = 0.9{}", &text[..at], &text[end..]);
+    assert_ne!(edited, text);
+    std::fs::write(&path, edited).unwrap();
+    let o = stria(&["handoff", out.to_str().unwrap(), "--pick", &id]);
+    assert_bad(&o, "study.toml", "fingerprint");
+    assert!(!out.join("handoff").exists());
+}
+
+#[test]
+fn report_leaves_out_front_values_it_cannot_draw_and_a_torn_history_line() {
+    // Audit item 6: `report` drew NaN, inf or 1e300 from a front.csv, and a torn last line
+    // of history.csv (a kill during the append) made it fail as bad input until a resume.
+    let dir = tempfile::tempdir().unwrap();
+    let (_, out) = finished_run(dir.path());
+    let front = std::fs::read_to_string(out.join("front.csv")).unwrap();
+    let mut lines: Vec<String> = front.lines().map(String::from).collect();
+    assert!(lines.len() >= 5, "a front of {} rows", lines.len() - 1);
+    for (k, bad) in [(1, "NaN"), (2, "inf"), (3, "1e300")] {
+        let mut cells: Vec<&str> = lines[k].split(',').collect();
+        let last = cells.len() - 1;
+        cells[last - 1] = bad;
+        lines[k] = cells.join(",");
+    }
+    std::fs::write(out.join("front.csv"), lines.join("\n") + "\n").unwrap();
+    let mut history = std::fs::OpenOptions::new()
+        .append(true)
+        .open(out.join("history.csv"))
+        .unwrap();
+    std::io::Write::write_all(&mut history, b"99,1584,0.7").unwrap();
+    let o = stria(&["report", out.to_str().unwrap()]);
+    let err = stderr(&o);
+    assert_eq!(o.status.code(), Some(0), "{err}");
+    assert_eq!(err.matches("is left out").count(), 3, "{err}");
+    let page = std::fs::read_to_string(out.join("report").join("report.html")).unwrap();
+    for word in ["NaN", ">inf<", "\"inf\"", "1e300", "1.0e300"] {
+        assert!(!page.contains(word), "`{word}` in the report");
+    }
+}
