@@ -162,10 +162,9 @@ pub fn read_front(path: &Path) -> Result<Front, CliError> {
         // A number that is not finite, or absurdly large, cannot be drawn or handed off:
         // the row is left out, with a note (blank cells, such as an absent wavelength, are
         // not numbers and stay).
-        let absurd = raw
-            .iter()
-            .zip(&values)
-            .position(|(t, v)| t.parse::<f64>().is_ok() && !(v.abs() <= FRONT_VALUE_MAX));
+        let absurd = raw.iter().zip(&values).position(|(t, v)| {
+            t.parse::<f64>().is_ok() && (v.is_nan() || v.abs() > FRONT_VALUE_MAX)
+        });
         if let Some(k) = absurd {
             eprintln!(
                 "warning: {}:{line}: {}: `{}` is not a finite number of at most {FRONT_VALUE_MAX:e} in magnitude; design {id} is left out",
