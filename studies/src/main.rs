@@ -89,6 +89,24 @@ enum Command {
         #[arg(long)]
         out: Option<PathBuf>,
     },
+    /// Sobol sensitivity indices of the study's objectives and constrained quantities with
+    /// respect to the uncertain ROM constants (and, optionally, the design variables).
+    Sensitivity {
+        /// The study file (TOML).
+        study: PathBuf,
+        /// Base samples n (the model is evaluated n (d + 2) times for d parameters).
+        #[arg(long, default_value_t = 256)]
+        samples: usize,
+        /// Seed of the points and the bootstrap (default: the study's optimizer.seed).
+        #[arg(long)]
+        seed: Option<u64>,
+        /// Also vary the study's design variables over their bounds.
+        #[arg(long = "design-variables")]
+        design_variables: bool,
+        /// Output directory (default: runs/<study file name>-sensitivity).
+        #[arg(long)]
+        out: Option<PathBuf>,
+    },
     /// Calibrate ROM constants to current-voltage data.
     Fit {
         /// The data (CSV).
@@ -205,6 +223,22 @@ fn dispatch(cli: Cli) -> Result<ExitCode, CliError> {
         Command::Handoff { dir, picks, out } => {
             studies::handoff::run(&dir, &picks, out.as_deref()).map(|()| ExitCode::SUCCESS)
         }
+        Command::Sensitivity {
+            study,
+            samples,
+            seed,
+            design_variables,
+            out,
+        } => studies::uncertainty::sensitivity::run(
+            &studies::uncertainty::sensitivity::SensitivityOptions {
+                study,
+                samples,
+                seed,
+                design_variables,
+                out,
+            },
+        )
+        .map(|()| ExitCode::SUCCESS),
         Command::Fit {
             data,
             study,

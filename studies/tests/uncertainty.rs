@@ -82,3 +82,76 @@ fn eval_samples_out_of_range_are_refused() {
     let out = stria(&["eval", q, "--seed", "3"]);
     assert_eq!(out.status.code(), Some(2), "--seed without --samples");
 }
+
+#[test]
+fn sensitivity_writes_the_indices_the_same_for_a_seed() {
+    let dir = tempfile::tempdir().unwrap();
+    let quick = demo("quick.toml");
+    let q = quick.to_str().unwrap();
+    let (a, b) = (dir.path().join("a"), dir.path().join("b"));
+    for out in [&a, &b] {
+        let o = stria(&[
+            "sensitivity",
+            q,
+            "--samples",
+            "64",
+            "--seed",
+            "2",
+            "--out",
+            out.to_str().unwrap(),
+        ]);
+        assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    }
+    let csv_a = std::fs::read_to_string(a.join("sensitivity.csv")).unwrap();
+    assert_eq!(
+        csv_a,
+        std::fs::read_to_string(b.join("sensitivity.csv")).unwrap()
+    );
+    let mut lines = csv_a.lines();
+    assert_eq!(
+        lines.next(),
+        Some("output,parameter,first_order,first_order_ci,total,total_ci")
+    );
+    let rows: Vec<Vec<String>> = lines
+        .map(|l| l.split(',').map(str::to_string).collect())
+        .collect();
+    // Ten uncertain constants times (objectives + constrained quantities) of the quick demo.
+    assert_eq!(rows.len() % 10, 0);
+    assert!(rows.len() >= 20);
+    let num = |r: &Vec<String>, i: usize| r[i].parse::<f64>().unwrap();
+    for r in &rows {
+        assert_eq!(r.len(), 6);
+        for i in 2..6 {
+            assert!(num(r, i).is_finite(), "{r:?}");
+        }
+        assert!(
+            num(r, 3) >= 0.0 && num(r, 5) >= 0.0,
+            "half-widths are not negative"
+        );
+    }
+    // The onset voltage moves the electrochemistry and so the salt removal rate; the
+    // channel's pressure drop does not depend on any ROM constant.
+    let onset = rows
+        .iter()
+        .find(|r| r[0] == "salt_removal_rate_mol_m2_s" && r[1] == "onset_voltage")
+        .expect("a row for the removal rate and the onset voltage");
+    assert!(num(onset, 4) > 0.05, "{onset:?}");
+    for r in rows.iter().filter(|r| r[0] == "pressure_drop") {
+        assert!(num(r, 2).abs() < 1e-12 && num(r, 4).abs() < 1e-12, "{r:?}");
+    }
+    let svg = std::fs::read_to_string(a.join("sensitivity.svg")).unwrap();
+    assert!(
+        svg.starts_with("<svg") && svg.contains("onset_voltage"),
+        "the figure names the parameters"
+    );
+
+    let bad = stria(&[
+        "sensitivity",
+        q,
+        "--samples",
+        "1",
+        "--out",
+        a.to_str().unwrap(),
+    ]);
+    assert_eq!(bad.status.code(), Some(2));
+}

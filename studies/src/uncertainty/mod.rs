@@ -8,10 +8,12 @@
 //! thread count.
 
 pub mod priors;
+pub mod sensitivity;
 
 use std::fmt::Write as _;
 
-use model::{Design, Evaluation, Options, RomConstants};
+use model::plant::{evaluate_plant, Plant};
+use model::{Evaluation, Options, RomConstants};
 use optimizer::sampling::percentile;
 use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
@@ -163,9 +165,10 @@ pub struct VariedConstant {
     pub prior: optimizer::sampling::Distribution,
 }
 
-/// Evaluate `design` at `n` draws of the constants around `base` (seeded with `seed`).
+/// Evaluate `plant` at `n` draws of the constants around `base` (seeded with `seed`); the
+/// outputs are those of its first stage's cell pair (the design sheet's).
 pub fn of_design(
-    design: &Design,
+    plant: &Plant,
     base: &RomConstants,
     n: usize,
     seed: u64,
@@ -174,7 +177,10 @@ pub fn of_design(
     let draws = draw_constants(base, &varied, n, seed)?;
     let evals: Vec<Option<Evaluation>> = draws
         .par_iter()
-        .map(|k| model::evaluate(design, k, &Options::default()).ok())
+        .map(|k| {
+            let mut p = evaluate_plant(plant, k, &Options::default()).ok()?;
+            (!p.stage_evaluations.is_empty()).then(|| p.stage_evaluations.swap_remove(0))
+        })
         .collect();
     let ok: Vec<&Evaluation> = evals.iter().flatten().collect();
     let outputs = OUTPUTS
@@ -231,7 +237,7 @@ pub fn for_eval(
         ));
     }
     let seed = seed.unwrap_or(study.optimizer.seed);
-    of_design(&study.baseline, &study.constants, n, seed)
+    of_design(&study.baseline_plant(), &study.constants, n, seed)
         .map(Some)
         .map_err(crate::error::CliError::runtime)
 }
