@@ -212,10 +212,7 @@ pub fn constants_toml(cal: &Calibration, data_file: &Path) -> Result<String, Cli
 /// The plot of data against the fitted curves, per curve.
 pub fn plot(data: &DataSet, cal: &Calibration) -> Result<String, CliError> {
     let mut series = Vec::new();
-    for (ci, curve) in data.curves().iter().enumerate() {
-        let idx: Vec<usize> = (0..data.points.len())
-            .filter(|&k| &data.points[k].curve == curve)
-            .collect();
+    for (ci, (curve, idx)) in data.curve_groups().iter().enumerate() {
         let colour = ci + 1;
         let pts: Vec<(f64, f64)> = idx
             .iter()
@@ -263,16 +260,10 @@ pub fn plot(data: &DataSet, cal: &Calibration) -> Result<String, CliError> {
 
 /// Per-curve residual summary: (curve, points, RMS residual A/m^2, largest |residual|).
 pub fn per_curve(data: &DataSet, cal: &Calibration) -> Vec<(String, usize, f64, f64)> {
-    data.curves()
+    data.curve_groups()
         .into_iter()
-        .map(|c| {
-            let r: Vec<f64> = data
-                .points
-                .iter()
-                .zip(&cal.result.residuals)
-                .filter(|(p, _)| p.curve == c)
-                .map(|(_, r)| *r)
-                .collect();
+        .map(|(c, idx)| {
+            let r: Vec<f64> = idx.iter().map(|&k| cal.result.residuals[k]).collect();
             let rms = (r.iter().map(|x| x * x).sum::<f64>() / r.len() as f64).sqrt();
             let max = r.iter().map(|x| x.abs()).fold(0.0, f64::max);
             (c, r.len(), rms, max)

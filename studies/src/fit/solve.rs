@@ -350,8 +350,18 @@ where
     };
     let mut best: Option<(Vec<f64>, f64)> = None;
     let mut start_costs = Vec::new();
+    let t0 = std::time::Instant::now();
     for (k, s) in starts.iter().enumerate() {
         let (p, c) = nelder_mead(&cost, s, seed.wrapping_add(k as u64)).map_err(Refusal)?;
+        // Progress of a long fit (one line a start, on stderr).
+        if t0.elapsed() > std::time::Duration::from_secs(2) {
+            eprintln!(
+                "fit: start {} of {} done after {:.0} s",
+                k + 1,
+                starts.len(),
+                t0.elapsed().as_secs_f64()
+            );
+        }
         start_costs.push(c);
         if best.as_ref().is_none_or(|b| c < b.1) {
             best = Some((p, c));
