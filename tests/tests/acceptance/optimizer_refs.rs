@@ -666,7 +666,12 @@ fn invalid_settings_are_refused() {
         &p,
     )
     .unwrap();
-    let other = run.to_json().replacen("\"version\":1", "\"version\":99", 1);
+    let current = format!("\"version\":{}", optimizer::run::STATE_VERSION);
+    assert!(
+        run.to_json().contains(&current),
+        "the state names its version"
+    );
+    let other = run.to_json().replacen(&current, "\"version\":99", 1);
     assert!(Run::from_json(&other)
         .unwrap_err()
         .to_string()
