@@ -30,13 +30,21 @@ enum Command {
         /// The study file (TOML).
         study: PathBuf,
     },
-    /// Evaluate one design: the study's baseline, changed by --set.
+    /// Evaluate one design: the study's baseline design, changed by --set; or, with --run and
+    /// --pick, a design of a run's front.
     Eval {
         /// The study file (TOML).
-        study: PathBuf,
+        #[arg(required_unless_present = "run", conflicts_with = "run")]
+        study: Option<PathBuf>,
         /// Change one key, with the study file's key names: --set membranes.pitch_um=80
-        #[arg(long = "set", value_name = "SECTION.KEY=VALUE")]
+        #[arg(long = "set", value_name = "SECTION.KEY=VALUE", conflicts_with = "run")]
         sets: Vec<String>,
+        /// A run directory: evaluate the design --pick ID of its front with the run's own study.
+        #[arg(long, value_name = "DIR", requires = "pick")]
+        run: Option<PathBuf>,
+        /// Design id from the run's front.csv (with --run).
+        #[arg(long, value_name = "ID", requires = "run")]
+        pick: Option<u64>,
         /// Print the evaluation as JSON (SI units) instead of the design sheet.
         #[arg(long)]
         json: bool,
@@ -191,12 +199,29 @@ fn dispatch(cli: Cli) -> Result<ExitCode, CliError> {
         Command::Eval {
             study,
             sets,
+            run,
+            pick,
             json,
             profile,
             samples,
             seed,
-        } => studies::eval::run(&study, &sets, json, profile, samples.map(|n| (n, seed)))
-            .map(|()| ExitCode::SUCCESS),
+        } => {
+            let subject = match (&study, &run, pick) {
+                (_, Some(dir), Some(id)) => studies::eval::Subject::Pick { dir, id },
+                (Some(path), _, _) => studies::eval::Subject::Study { path, sets: &sets },
+                _ => {
+                    return Err(CliError::input(
+                        "command line",
+                        None,
+                        "STUDY",
+                        "no design to evaluate",
+                        "a study file, or --run DIR with --pick ID",
+                    ))
+                }
+            };
+            studies::eval::run(subject, json, profile, samples.map(|n| (n, seed)))
+                .map(|()| ExitCode::SUCCESS)
+        }
         Command::Run {
             study,
             out,

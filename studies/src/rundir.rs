@@ -328,7 +328,7 @@ pub fn x_of(run: &RunDir, row: &FrontRow) -> Result<Vec<f64>, CliError> {
         .collect()
 }
 
-/// The unpatterned baseline of a design: the same design with open_fraction = 1.
+/// The unpatterned reference of a design: the same design with open_fraction = 1.
 pub fn unpatterned(design: &model::Design) -> model::Design {
     let mut d = *design;
     d.membranes.open_fraction = 1.0;

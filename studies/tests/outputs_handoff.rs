@@ -28,7 +28,8 @@ fn close(a: f64, b: f64, rel: f64, what: &str) {
 
 fn check_case(c: &Value, unpatterned: bool) {
     assert_eq!(c["schema"], "stria.cfd_case");
-    assert_eq!(c["schema_version"].as_u64(), Some(1));
+    assert_eq!(c["schema_version"].as_u64(), Some(2));
+    assert_eq!(c["unpatterned_reference"].as_bool(), Some(unpatterned));
     let t = num(c, "electrolyte.temperature_K");
     let conc = num(c, "electrolyte.bulk_concentration_mol_m3");
     let eps_r = num(c, "electrolyte.relative_permittivity");

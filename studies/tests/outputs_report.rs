@@ -89,15 +89,24 @@ fn report_page_and_figures_are_valid_self_contained_and_show_the_front() {
         roxmltree::Document::parse(b).unwrap();
     }
     check_self_contained(&html);
-    // the baseline is marked on the fronts, the caution is there
+    // the unpatterned reference is marked on the fronts, terms are defined, the caution is there
     assert!(
         blocks
             .iter()
-            .filter(|b| b.contains("unpatterned baseline"))
+            .filter(|b| b.contains("unpatterned reference"))
             .count()
             >= 3
     );
     assert!(html.contains("screening model") && html.contains("licensed practice"));
+    assert!(html.contains("active-area fraction: the share of the patterned membrane"));
+    // "baseline" means the study's baseline design only, never the unpatterned reference
+    for (at, _) in html.match_indices("baseline") {
+        assert!(
+            html[at..].starts_with("baseline design"),
+            "`baseline` not as `baseline design`: ...{}...",
+            &html[at.saturating_sub(60)..(at + 60).min(html.len())]
+        );
+    }
 
     // the front table shows every number of front.csv: the exact text as the cell's title and a
     // 4-significant-figure rendering within half a unit of the 4th figure

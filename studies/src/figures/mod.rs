@@ -36,11 +36,11 @@ pub struct Series {
     pub points: Vec<(f64, f64)>,
     /// How to draw.
     pub mark: Mark,
-    /// Colour slot (0 = black baseline, then a palette).
+    /// Colour slot (0 = black: the unpatterned reference, then a palette).
     pub colour: usize,
 }
 
-/// Palette slot to colour: 0 is black (the baseline), then distinct hues.
+/// Palette slot to colour: 0 is black (the unpatterned reference), then distinct hues.
 pub fn palette(i: usize) -> RGBColor {
     const P: [RGBColor; 7] = [
         RGBColor(0, 0, 0),

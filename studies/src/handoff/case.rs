@@ -9,7 +9,7 @@ use model::properties::{debye_length, thermal_voltage};
 use serde::Serialize;
 
 /// Version of the `case.json` schema; raised whenever a field changes meaning or is removed.
-pub const SCHEMA_VERSION: u32 = 1;
+pub const SCHEMA_VERSION: u32 = 2;
 
 /// Share of the bulk concentration above which a piece of membrane counts as active
 /// (reached by salty fluid) in the active-area fraction's definition.
@@ -29,7 +29,7 @@ pub struct CaseInputs {
     pub name: String,
     /// Front id of the design, None for nothing (always Some for designs of a run).
     pub design_id: u64,
-    /// True for the unpatterned baseline of `design_id`.
+    /// True for the unpatterned reference of `design_id` (the same design, open fraction 1).
     pub unpatterned: bool,
     /// Study name.
     pub study: String,
@@ -261,8 +261,9 @@ pub struct CaseCard {
     pub study: String,
     /// Front id of the design this case belongs to.
     pub design_id: u64,
-    /// True: the unpatterned baseline at the design's operating point.
-    pub unpatterned_baseline: bool,
+    /// True: the unpatterned reference, the design with open fraction 1 at its operating
+    /// point (schema 1 called it `unpatterned_baseline`).
+    pub unpatterned_reference: bool,
     /// The membrane at y = 0: "CEM" (cation-exchange) or "AEM" (anion-exchange).
     pub membrane: &'static str,
     /// What the case is, in one sentence.
@@ -355,7 +356,7 @@ pub fn build(inp: &CaseInputs) -> CaseCard {
     };
     let description = if inp.unpatterned {
         format!(
-            "Unpatterned baseline of design {}: the same channel, water and operating point with \
+            "Unpatterned reference of design {}: the same channel, water and operating point with \
              a homogeneous {exchange} membrane, so the patterned case can be compared like \
              with like.",
             inp.design_id
@@ -436,7 +437,7 @@ pub fn build(inp: &CaseInputs) -> CaseCard {
         name,
         study: inp.study.clone(),
         design_id: inp.design_id,
-        unpatterned_baseline: inp.unpatterned,
+        unpatterned_reference: inp.unpatterned,
         membrane: kind,
         description,
         geometry: Geometry {

@@ -1,12 +1,13 @@
 //! `stria handoff`: CFD case cards for chosen front designs, each with its unpatterned
-//! baseline at the same operating point.
+//! reference (the same design, open fraction 1) at the same operating point.
 //!
 //! For each pick, two folders under the output directory (default `DIR/handoff`):
 //! `design_<id>/` and `design_<id>_unpatterned/`, each with `case.json` (see [`case`]),
-//! `layout.svg` and `README.txt`. Every pick is checked and every card computed before
+//! `geometry.geo` (see [`geo`]), `layout.svg` and `README.txt`. Every pick is checked and every card computed before
 //! anything is written; each file is written atomically.
 
 pub mod case;
+pub mod geo;
 
 use std::path::{Path, PathBuf};
 
@@ -195,7 +196,9 @@ pub fn readme(card: &CaseCard) -> String {
          ({exchange}) is the wall y = 0; stripe edges are in case.json \
          (geometry.conducting_stripes_m, geometry.inert_stripes_m, metres from the window start).\n\
          layout.svg draws the window to scale with the diffusion-layer thickness and the \
-         predicted vortex size.\n\n\
+         predicted vortex size. geometry.geo is the same window in Gmsh's geometry format, \
+         with the boundaries as named physical groups and the mesh sizes below \
+         (`gmsh -2 geometry.geo` meshes it).\n\n\
          WHAT TO RUN\n\
          Poisson-Nernst-Planck-Stokes (or Navier-Stokes) for the two ions of {salt} at \
          {temp:.2} K, with the boundary conditions of case.json (boundary_conditions: inflow, \
@@ -255,7 +258,7 @@ pub fn readme(card: &CaseCard) -> String {
         of = g.open_fraction,
         pos = g.window_centre_from_inlet_m,
         caution = crate::CAUTION,
-        membrane = if card.unpatterned_baseline {
+        membrane = if card.unpatterned_reference {
             format!("unpatterned {}", card.membrane)
         } else {
             format!("patterned {}", card.membrane)
@@ -326,8 +329,10 @@ pub fn run(dir: &Path, picks: &[u64], out: Option<&Path>) -> Result<(), CliError
         std::fs::create_dir_all(&folder).map_err(|e| io_error("create", &folder, e))?;
         let json =
             serde_json::to_string_pretty(&p.card).map_err(|e| CliError::json("case.json", e))?;
+        let geometry = geo::geo(&p.card);
         for (file, bytes) in [
             ("case.json", json.as_bytes()),
+            ("geometry.geo", geometry.as_bytes()),
             ("layout.svg", p.layout_svg.as_bytes()),
             ("README.txt", p.readme.as_bytes()),
         ] {

@@ -83,6 +83,17 @@ fn diag_row(label: &str, why: &str, e: &Evaluation) -> String {
     )
 }
 
+/// The words the page uses in one sense only.
+fn terms() -> String {
+    format!(
+        "The baseline design is the design written in the study file. The unpatterned \
+         reference is the study's baseline design with an unpatterned membrane (open fraction 1) \
+         at the same operating point; each chosen design also has its own unpatterned twin. The \
+         {}.",
+        crate::eval::ACTIVE_AREA_MEANING
+    )
+}
+
 /// The page.
 pub fn page(
     run: &RunDir,
@@ -117,6 +128,11 @@ pub fn page(
         );
     }
     h.push_str("</table>\n");
+    let _ = writeln!(
+        h,
+        "<p class=\"terms\"><strong>Terms.</strong> {}</p>",
+        esc(&terms())
+    );
     for n in notes {
         let _ = writeln!(h, "<p><strong>Note:</strong> {}</p>", esc(n));
     }
@@ -138,7 +154,11 @@ pub fn page(
     if !chosen.is_empty() || baseline.is_some() {
         h.push_str("<h2>Key diagnostics of the chosen designs</h2>\n<table>\n<tr><th class=\"l\">design</th><th class=\"l\">chosen as</th><th>pitch (um)</th><th>open fraction</th><th>velocity (cm/s)</th><th>mean current density (A/m^2)</th><th>outlet concentration (mol/m^3)</th><th>specific energy (kWh/m^3)</th><th>active-area fraction</th><th>vortex wavelength (um)</th></tr>\n");
         if let Some(e) = baseline {
-            h.push_str(&diag_row("baseline", "unpatterned, open fraction 1", e));
+            h.push_str(&diag_row(
+                "unpatterned reference",
+                "the study's baseline design, open fraction 1",
+                e,
+            ));
         }
         for c in chosen {
             h.push_str(&diag_row(&format!("design {}", c.id), &c.why, &c.eval));

@@ -2,7 +2,7 @@
 //!
 //! Written to `DIR/report/`: `report.html` (every figure inlined, no external file, script or
 //! URL, so it opens offline and can be mailed as one file) and each figure as its own SVG.
-//! The unpatterned baseline is the study's baseline design with open_fraction = 1 at the same
+//! The unpatterned reference is the study's baseline design with open_fraction = 1 at the same
 //! operating point, evaluated by the model.
 
 pub mod html;
@@ -128,7 +128,7 @@ fn front_figures(
 ) -> Result<Vec<Figure>, CliError> {
     let objs = &run.study.objectives;
     let mut figs = Vec::new();
-    // the baseline may break a constraint the front respects: say so beside the mark
+    // the unpatterned reference may break a constraint the front respects: say so beside it
     let violated: Vec<&str> = baseline
         .map(|e| {
             run.study
@@ -140,9 +140,12 @@ fn front_figures(
         })
         .unwrap_or_default();
     let baseline_label = if violated.is_empty() {
-        "unpatterned baseline".to_string()
+        "unpatterned reference".to_string()
     } else {
-        format!("unpatterned baseline (infeasible: {})", violated.join(", "))
+        format!(
+            "unpatterned reference (infeasible: {})",
+            violated.join(", ")
+        )
     };
     let diag = "active_area_fraction";
     for a in 0..objs.len() {
@@ -192,8 +195,8 @@ fn front_figures(
                 file: format!("front_{}_vs_{}.svg", ob.key(), oa.key()),
                 caption: format!(
                     "The {} non-dominated designs in {} and {}, coloured by {}; the cross marks \
-                     the study's baseline with an unpatterned membrane (open fraction 1) at the \
-                     same operating point.",
+                     the unpatterned reference: the study's baseline design with an unpatterned \
+                     membrane (open fraction 1) at the same operating point.",
                     pts.len(),
                     oa.key(),
                     ob.key(),
@@ -265,7 +268,7 @@ fn design_figures(
         });
     };
     if let Some((d, _)) = base {
-        add_iv("unpatterned baseline".into(), d, 0, figures::Mark::Line);
+        add_iv("unpatterned reference".into(), d, 0, figures::Mark::Line);
     }
     for (k, c) in chosen.iter().enumerate() {
         add_iv(
@@ -285,8 +288,8 @@ fn design_figures(
         file: "iv_curves.svg".into(),
         caption: "Cell-pair current density against cell-pair voltage at the channel inlet (feed \
                   concentrations): the chosen designs (solid), each unpatterned at its own \
-                  velocity and gap (faint, same colour), and the study's unpatterned baseline \
-                  (black)."
+                  velocity and gap (faint, same colour), and the unpatterned reference (the \
+                  study's baseline design, open fraction 1; black)."
             .into(),
         svg: figures::xy_chart(
             "Current-voltage curves",
@@ -330,7 +333,7 @@ fn design_figures(
             }
         };
         if let Some((_, e)) = base {
-            add("unpatterned baseline".into(), e, 0, figures::Mark::Line);
+            add("unpatterned reference".into(), e, 0, figures::Mark::Line);
         }
         for (k, c) in chosen.iter().enumerate() {
             add(
@@ -352,8 +355,8 @@ fn design_figures(
             file: file.into(),
             caption: format!(
                 "{title}, from inlet (0) to outlet: the chosen designs (solid), each unpatterned \
-                 at its own operating point (faint, same colour), and the study's unpatterned \
-                 baseline (black)."
+                 at its own operating point (faint, same colour), and the unpatterned reference \
+                 (the study's baseline design, open fraction 1; black)."
             ),
             svg: figures::xy_chart(title, "distance from the inlet (m)", ylabel, &series)?,
         });
@@ -427,11 +430,11 @@ pub fn unfinished_note(run: &RunDir) -> Option<String> {
 /// Build the report of a run (figures and page) without writing anything.
 pub fn build(run: &RunDir) -> Result<Report, CliError> {
     let base_design = rundir::unpatterned(&run.study.baseline);
-    let base_eval = profiled(&base_design, run, "unpatterned baseline");
+    let base_eval = profiled(&base_design, run, "unpatterned reference");
     let mut notes = Vec::new();
     if let Err(e) = &base_eval {
         notes.push(format!(
-            "The unpatterned baseline could not be evaluated ({e}); it is not shown."
+            "The unpatterned reference could not be evaluated ({e}); it is not shown."
         ));
     }
     let base_eval = base_eval.ok();
@@ -480,8 +483,8 @@ pub fn build(run: &RunDir) -> Result<Report, CliError> {
             .collect::<Vec<_>>()
             .join("; ");
         sections.push((
-            "Chosen designs against the unpatterned baseline".into(),
-            format!("The best design in each objective: {list}. Black: the unpatterned baseline."),
+            "Chosen designs against the unpatterned reference".into(),
+            format!("The best design in each objective: {list}. Black: the unpatterned reference."),
             design_figures(run, &chosen, base_eval.as_ref().map(|e| (&base_design, e)))?,
         ));
     }

@@ -381,7 +381,8 @@ pub fn run(opts: &RunOptions) -> Result<Ended, CliError> {
         Ended::Finished(r) => eprintln!(
             "finished ({r}) after {} evaluations in {} generations; {} designs on the front; written to {}\n\
              next: the front is in {d}/front.csv; `stria report {d}` draws it with the unpatterned \
-             baseline, and `stria handoff {d} --pick ID` writes CFD case cards for chosen ids",
+             reference, `stria eval --run {d} --pick ID` shows a design's sheet, and \
+             `stria handoff {d} --pick ID` writes CFD case cards for chosen ids",
             state.run.evaluations(),
             state.run.generation(),
             state.run.archive().len(),

@@ -336,6 +336,73 @@ impl Constraint {
             _ => q / self.limit() - 1.0,
         }
     }
+
+    /// The constrained quantity's name, without a unit (`stria eval --json`).
+    pub fn name(self) -> &'static str {
+        match self {
+            Constraint::MaxProduct(_) => "product_concentration",
+            Constraint::MaxPressureDrop(_) => "pressure_drop",
+            Constraint::MaxReynolds(_) => "reynolds",
+            Constraint::MaxStackVoltage(_) => "stack_voltage",
+            Constraint::MinWaterRecovery(_) => "water_recovery",
+            Constraint::MaxConcentrateCalciteSi(_) => "concentrate_calcite_si",
+            Constraint::MaxConcentrateGypsumSi(_) => "concentrate_gypsum_si",
+        }
+    }
+
+    /// The constrained quantity in words (design sheet).
+    pub fn label(self) -> &'static str {
+        match self {
+            Constraint::MaxProduct(_) => "product (diluate outlet)",
+            Constraint::MaxPressureDrop(_) => "diluate pressure drop",
+            Constraint::MaxReynolds(_) => "Reynolds number",
+            Constraint::MaxStackVoltage(_) => "stack voltage (largest stage)",
+            Constraint::MinWaterRecovery(_) => "water recovery (plant)",
+            Constraint::MaxConcentrateCalciteSi(_) => "calcite SI of the concentrate",
+            Constraint::MaxConcentrateGypsumSi(_) => "gypsum SI of the concentrate",
+        }
+    }
+
+    /// SI unit of the value and the limit.
+    pub fn unit(self) -> &'static str {
+        match self {
+            Constraint::MaxProduct(_) => "mol/m3",
+            Constraint::MaxPressureDrop(_) => "Pa",
+            Constraint::MaxStackVoltage(_) => "V",
+            Constraint::MaxReynolds(_)
+            | Constraint::MinWaterRecovery(_)
+            | Constraint::MaxConcentrateCalciteSi(_)
+            | Constraint::MaxConcentrateGypsumSi(_) => "-",
+        }
+    }
+
+    /// The unit of the study key (and of the design sheet) and the factor from SI to it.
+    pub fn key_unit(self) -> (&'static str, f64) {
+        match self {
+            Constraint::MaxProduct(_) => ("mM", 1.0),
+            Constraint::MaxPressureDrop(_) => ("kPa", 1e-3),
+            Constraint::MaxStackVoltage(_) => ("V", 1.0),
+            Constraint::MaxReynolds(_)
+            | Constraint::MinWaterRecovery(_)
+            | Constraint::MaxConcentrateCalciteSi(_)
+            | Constraint::MaxConcentrateGypsumSi(_) => ("-", 1.0),
+        }
+    }
+
+    /// Whether the limit is a lower one (the quantity must be at least the limit).
+    pub fn is_minimum(self) -> bool {
+        matches!(self, Constraint::MinWaterRecovery(_))
+    }
+
+    /// Whether a value of the quantity meets the constraint, the limit itself included: at
+    /// most the limit, or at least it for a minimum.
+    pub fn met_by(self, value: f64) -> bool {
+        if self.is_minimum() {
+            value >= self.limit()
+        } else {
+            value <= self.limit()
+        }
+    }
 }
 
 /// Which search.
