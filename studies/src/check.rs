@@ -15,7 +15,7 @@ use crate::study::Study;
 /// and upper bound (the other variables at their baseline), one line each, deduplicated.
 pub fn bound_warnings(study: &Study) -> Vec<String> {
     let base = study.baseline_x();
-    let mut points: Vec<(String, Vec<f64>)> = vec![("baseline".to_string(), base.clone())];
+    let mut points: Vec<(String, Vec<f64>)> = vec![("baseline design".to_string(), base.clone())];
     for (i, v) in study.variables.iter().enumerate() {
         for (label, value) in [("lower", v.lower), ("upper", v.upper)] {
             let mut x = base.clone();

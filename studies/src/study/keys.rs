@@ -535,8 +535,8 @@ pub fn reference_markdown() -> String {
     }
     out.push_str(
         "Bounds of a variable use the unit of their key and must lie in that quantity's allowed \
-         range, with lower < upper. A variable whose section is absent is held at the baseline \
-         value of the study.\n",
+         range, with lower < upper. A variable whose section is absent is held at its value in \
+         the study's baseline design (the values the study file gives).\n",
     );
     out
 }
