@@ -68,7 +68,12 @@ fn not_regular(meta: &fs::Metadata) -> io::Error {
 /// Create `dir` and any missing parents, fsyncing each new directory into its parent, so a
 /// run directory survives a power cut together with the files written into it.
 pub fn create_dir_synced(dir: &Path) -> io::Result<()> {
-    let missing: Vec<&Path> = dir.ancestors().take_while(|a| !a.exists()).collect();
+    // A relative path's last ancestor is "", which never "exists": stop before it (the
+    // working directory exists), or `runs/quick` could not be created.
+    let missing: Vec<&Path> = dir
+        .ancestors()
+        .take_while(|a| !a.as_os_str().is_empty() && !a.exists())
+        .collect();
     for d in missing.into_iter().rev() {
         match fs::create_dir(d) {
             Ok(()) => sync_dir(parent_dir(d))?,
