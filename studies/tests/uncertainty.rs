@@ -53,6 +53,41 @@ fn eval_samples_give_ordered_percentiles_the_same_for_a_seed() {
         .unwrap();
     assert!(o["p5"].as_f64().unwrap() * 0.9 <= e && e <= o["p95"].as_f64().unwrap() * 1.1);
 
+    // The quick demo is patterned: it is compared with its unpatterned twin at the same draws.
+    let p = &u["patterning"];
+    let prob = p["probability_patterning_cheaper"].as_f64().unwrap();
+    assert!((0.0..=1.0).contains(&prob), "{p}");
+    let compared = p["draws_compared"].as_u64().unwrap();
+    assert!(compared > 30 && compared <= 40, "{p}");
+    // A probability from m draws is a multiple of 1/m.
+    assert!((prob * compared as f64 - (prob * compared as f64).round()).abs() < 1e-9);
+    for key in ["levelised_cost_ratio", "salt_removal_rate_ratio"] {
+        let r = &p[key];
+        let (a, b, c) = (
+            r["p5"].as_f64().unwrap(),
+            r["p50"].as_f64().unwrap(),
+            r["p95"].as_f64().unwrap(),
+        );
+        assert!(0.0 < a && a <= b && b <= c, "{key}: {r}");
+    }
+    // An unpatterned design has nothing to compare with.
+    let plain = stria(&[
+        "eval",
+        q,
+        "--samples",
+        "10",
+        "--json",
+        "--set",
+        "membranes.open_fraction=1",
+    ]);
+    assert!(
+        plain.status.success(),
+        "{}",
+        String::from_utf8_lossy(&plain.stderr)
+    );
+    let v: serde_json::Value = serde_json::from_slice(&plain.stdout).unwrap();
+    assert!(v["uncertainty"]["patterning"].is_null());
+
     let c = stria(&["eval", q, "--samples", "40", "--seed", "6", "--json"]);
     assert_ne!(a.stdout, c.stdout, "another seed, other draws");
 

@@ -154,6 +154,32 @@ pub struct Uncertainty {
     pub held: Vec<String>,
     /// Percentiles of each output (SI).
     pub outputs: Vec<OutputPercentiles>,
+    /// The design against its unpatterned twin under the same draws (absent when the design
+    /// is itself unpatterned).
+    pub patterning: Option<PatterningComparison>,
+}
+
+/// The patterned design against the same design with open fraction 1 at the same operating
+/// point (the project's unpatterned baseline), evaluated at the same draws of the constants.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct PatterningComparison {
+    /// Draws at which both evaluations succeeded.
+    pub draws_compared: usize,
+    /// Share of those draws at which the patterned design's levelised cost is lower.
+    pub probability_patterning_cheaper: f64,
+    /// Levelised cost, patterned / unpatterned: percentiles over the draws.
+    pub levelised_cost_ratio: OutputPercentiles,
+    /// Salt removal rate, patterned / unpatterned: percentiles over the draws.
+    pub salt_removal_rate_ratio: OutputPercentiles,
+}
+
+fn percentiles_of(name: &str, v: &[f64]) -> OutputPercentiles {
+    OutputPercentiles {
+        output: name.to_string(),
+        p5: percentile(v, 0.05),
+        p50: percentile(v, 0.5),
+        p95: percentile(v, 0.95),
+    }
 }
 
 /// A varied constant and its prior, for the record.
@@ -167,21 +193,54 @@ pub struct VariedConstant {
 
 /// Evaluate `plant` at `n` draws of the constants around `base` (seeded with `seed`); the
 /// outputs are those of its first stage's cell pair (the design sheet's).
+///
+/// With `unpatterned` (the same plant with open fraction 1), both are evaluated at the same
+/// draws and compared ([`PatterningComparison`]).
 pub fn of_design(
     plant: &Plant,
+    unpatterned: Option<&Plant>,
     base: &RomConstants,
     n: usize,
     seed: u64,
 ) -> Result<Uncertainty, String> {
     let (varied, held) = priors::priors_for(base);
     let draws = draw_constants(base, &varied, n, seed)?;
-    let evals: Vec<Option<Evaluation>> = draws
-        .par_iter()
-        .map(|k| {
-            let mut p = evaluate_plant(plant, k, &Options::default()).ok()?;
-            (!p.stage_evaluations.is_empty()).then(|| p.stage_evaluations.swap_remove(0))
-        })
-        .collect();
+    let first_stage = |plant: &Plant, k: &RomConstants| {
+        let mut p = evaluate_plant(plant, k, &Options::default()).ok()?;
+        (!p.stage_evaluations.is_empty()).then(|| p.stage_evaluations.swap_remove(0))
+    };
+    let evals: Vec<Option<Evaluation>> = draws.par_iter().map(|k| first_stage(plant, k)).collect();
+    let patterning = unpatterned.map(|u| {
+        let plain: Vec<Option<Evaluation>> = draws.par_iter().map(|k| first_stage(u, k)).collect();
+        let pairs: Vec<(&Evaluation, &Evaluation)> = evals
+            .iter()
+            .zip(&plain)
+            .filter_map(|(a, b)| Some((a.as_ref()?, b.as_ref()?)))
+            .collect();
+        let ratio = |f: fn(&Evaluation) -> f64| -> Vec<f64> {
+            pairs
+                .iter()
+                .map(|(a, b)| f(a) / f(b))
+                .filter(|r| r.is_finite())
+                .collect()
+        };
+        let cheaper = pairs
+            .iter()
+            .filter(|(a, b)| a.economics.levelised_cost_per_m3 < b.economics.levelised_cost_per_m3)
+            .count();
+        PatterningComparison {
+            draws_compared: pairs.len(),
+            probability_patterning_cheaper: cheaper as f64 / pairs.len().max(1) as f64,
+            levelised_cost_ratio: percentiles_of(
+                "levelised_cost_ratio",
+                &ratio(|e| e.economics.levelised_cost_per_m3),
+            ),
+            salt_removal_rate_ratio: percentiles_of(
+                "salt_removal_rate_ratio",
+                &ratio(|e| e.economics.salt_removal_rate_mol_m2_s),
+            ),
+        }
+    });
     let ok: Vec<&Evaluation> = evals.iter().flatten().collect();
     let outputs = OUTPUTS
         .iter()
@@ -212,6 +271,7 @@ pub fn of_design(
             .collect(),
         held: held.iter().map(|s| s.to_string()).collect(),
         outputs,
+        patterning,
     })
 }
 
@@ -237,9 +297,22 @@ pub fn for_eval(
         ));
     }
     let seed = seed.unwrap_or(study.optimizer.seed);
-    of_design(&study.baseline_plant(), &study.constants, n, seed)
-        .map(Some)
-        .map_err(crate::error::CliError::runtime)
+    let unpatterned = (study.baseline.membranes.open_fraction < 1.0).then(|| {
+        study.plant.plant(
+            &crate::rundir::unpatterned(&study.baseline),
+            study.concentrate_gap_follows,
+            study.concentrate_velocity_follows,
+        )
+    });
+    of_design(
+        &study.baseline_plant(),
+        unpatterned.as_ref(),
+        &study.constants,
+        n,
+        seed,
+    )
+    .map(Some)
+    .map_err(crate::error::CliError::runtime)
 }
 
 /// The design sheet's section on the uncertainty.
@@ -275,6 +348,26 @@ pub fn sheet_section(u: &Uncertainty, currency: &str) -> String {
             "  {} of {} draws could not be evaluated and are left out",
             u.failed, u.samples
         );
+    }
+    if let Some(p) = &u.patterning {
+        let r = &p.levelised_cost_ratio;
+        let q = &p.salt_removal_rate_ratio;
+        let text = format!(
+            "Against the same design unpatterned (open fraction 1, same operating point, same \
+             draws): levelised cost ratio {} / {} / {} (5th / median / 95th), salt removal rate \
+             ratio {} / {} / {}; the pattern is the cheaper in {:.0} % of {} draws.",
+            sig(r.p5, 3),
+            sig(r.p50, 3),
+            sig(r.p95, 3),
+            sig(q.p5, 3),
+            sig(q.p50, 3),
+            sig(q.p95, 3),
+            100.0 * p.probability_patterning_cheaper,
+            p.draws_compared
+        );
+        for line in crate::eval::wrap(&text, 94).lines() {
+            let _ = writeln!(s, "  {line}");
+        }
     }
     let keys: Vec<&str> = u.varied.iter().map(|v| v.key.as_str()).collect();
     let mut notes = format!("varied: {}.", keys.join(", "));
