@@ -4,8 +4,8 @@ use std::collections::HashMap;
 use std::sync::atomic::{AtomicU64, Ordering};
 
 use optimizer::{
-    Algorithm, InitialDesign, Nsga2Config, Outcome, Problem, RunConfig, Scalarisation,
-    ScalarisedConfig, ScreeningConfig, Solver, Variable,
+    Algorithm, Nsga2Config, Outcome, Problem, RunConfig, ScalarisedConfig, ScreeningConfig,
+    Variable,
 };
 
 use super::files::JournalRecord;
@@ -125,31 +125,17 @@ pub fn run_config(study: &Study) -> RunConfig {
             ..Nsga2Config::default()
         }),
         AlgorithmChoice::Scalarised => {
-            let scalarisation = match o.scalarisation.as_str() {
-                "weighted_sum" => Scalarisation::WeightedSum,
-                "chebyshev" => Scalarisation::Chebyshev,
-                _ => Scalarisation::EpsilonConstraint { objective: 0 },
-            };
-            let solver = match o.solver.as_str() {
-                "nelder_mead" => Solver::NelderMead,
-                "particle_swarm" => Solver::ParticleSwarm,
-                _ => Solver::SimulatedAnnealing,
-            };
             let rest = o.max_evaluations.saturating_sub(o.population as u64);
             Algorithm::Scalarised(ScalarisedConfig {
-                scalarisation,
-                solver,
+                scalarisation: o.scalarisation,
+                solver: o.solver,
                 subproblems: o.subproblems,
                 evaluations_per_subproblem: (rest / o.subproblems.max(1) as u64).max(1),
                 initial_samples: o.population.max(2),
             })
         }
         AlgorithmChoice::Screening => Algorithm::Screening(ScreeningConfig {
-            design: if o.sampler == "sobol" {
-                InitialDesign::Sobol
-            } else {
-                InitialDesign::LatinHypercube
-            },
+            design: o.sampler,
             points: o.max_evaluations.min(usize::MAX as u64) as usize,
             batch_size: o.population,
         }),

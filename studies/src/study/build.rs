@@ -3,11 +3,12 @@
 use std::path::Path;
 
 use model::{
-    validity, Channel, Design, Drive, Economics, FlowArrangement, LengthMode, Membranes, Operation,
-    PatternSide, RomConstants, Salt, Spacer, Water,
+    validity, Channel, Design, Drive, Economics, LengthMode, Membranes, Operation, RomConstants,
+    Salt, Spacer, Water,
 };
 use toml_edit::ImDocument;
 
+use super::choices::{LengthModeChoice, SaltChoice, SpacerChoice};
 use super::keys;
 use super::raw::{line_of, shown_name, syntax_message, unknown_key_help, RawStudy};
 use super::reader::{fmt_f64, Reader};
@@ -53,11 +54,7 @@ pub fn build(raw: &RawStudy) -> Result<(Study, Vec<StudyWarning>), CliError> {
     };
     let plant = super::plant::read_plant(&mut r, &baseline, baseline.water.temperature_k - 273.15)?;
     let variables = read_variables(&mut r, &baseline)?;
-    let objectives: Vec<Objective> = r
-        .word_list("objectives", "list")?
-        .iter()
-        .filter_map(|w| Objective::from_key(w))
-        .collect();
+    let objectives: Vec<Objective> = r.choose_list("objectives", "list", &keys::OBJECTIVES)?;
     let constraints = read_constraints(&mut r, &plant)?;
     let optimizer = read_optimizer(&mut r, objectives.len())?;
 
@@ -106,7 +103,7 @@ fn one_of(
 }
 
 fn read_water(r: &mut Reader) -> Result<Water, CliError> {
-    let salt_word = r.choice("water", "salt")?;
+    let salt_word = r.choose("water", "salt", &keys::SALTS)?;
     let temperature_c = r.float_req("water", "temperature_C")?;
     let custom_keys = [
         "cation_diffusivity_m2_s",
@@ -114,10 +111,10 @@ fn read_water(r: &mut Reader) -> Result<Water, CliError> {
         "cation_conductivity_S_m2_mol",
         "anion_conductivity_S_m2_mol",
     ];
-    let salt = match salt_word.as_str() {
-        "NaCl" => Salt::NaCl,
-        "KCl" => Salt::KCl,
-        _ => {
+    let salt = match salt_word {
+        SaltChoice::NaCl => Salt::NaCl,
+        SaltChoice::KCl => Salt::KCl,
+        SaltChoice::Custom => {
             let mut v = [0.0; 4];
             for (i, key) in custom_keys.iter().enumerate() {
                 v[i] = r.float("water", key)?.ok_or_else(|| {
@@ -233,7 +230,7 @@ fn read_channel(r: &mut Reader) -> Result<(Channel, bool), CliError> {
     };
     let length = r.float_req("channel", "length_m")?;
     let width = r.float_req("channel", "width_m")?;
-    let spacer_word = r.choice("channel", "spacer")?;
+    let spacer_word = r.choose("channel", "spacer", &keys::SPACERS)?;
     let only = |r: &mut Reader, key: &str, used_with: &str| {
         if r.given("channel", key) {
             r.warn(
@@ -243,8 +240,8 @@ fn read_channel(r: &mut Reader) -> Result<(Channel, bool), CliError> {
             );
         }
     };
-    let spacer = match spacer_word.as_str() {
-        "none" => {
+    let spacer = match spacer_word {
+        SpacerChoice::None => {
             for key in [
                 "spacer_porosity",
                 "spacer_shadow_factor",
@@ -255,7 +252,7 @@ fn read_channel(r: &mut Reader) -> Result<(Channel, bool), CliError> {
             }
             Spacer::None
         }
-        "schock_miquel" => {
+        SpacerChoice::SchockMiquel => {
             only(r, "spacer_sherwood_factor", "\"multiplier\"");
             only(r, "spacer_friction_factor", "\"multiplier\"");
             Spacer::SchockMiquel {
@@ -263,7 +260,7 @@ fn read_channel(r: &mut Reader) -> Result<(Channel, bool), CliError> {
                 shadow_factor: float_or(r, "channel", "spacer_shadow_factor", 1.0)?,
             }
         }
-        _ => {
+        SpacerChoice::Multiplier => {
             only(r, "spacer_porosity", "\"schock_miquel\"");
             Spacer::Multiplier {
                 sherwood: float_or(r, "channel", "spacer_sherwood_factor", 1.0)?,
@@ -320,11 +317,7 @@ fn read_membranes(r: &mut Reader, water: &Water) -> Result<Membranes, CliError> 
     }
     let cem_r = r.float_req("membranes", "cem_area_resistance_ohm_cm2")?;
     let aem_r = r.float_req("membranes", "aem_area_resistance_ohm_cm2")?;
-    let side = match r.choice("membranes", "pattern_side")?.as_str() {
-        "cem" => PatternSide::Cem,
-        "aem" => PatternSide::Aem,
-        _ => PatternSide::Both,
-    };
+    let side = r.choose("membranes", "pattern_side", &keys::PATTERN_SIDES)?;
     let pitch = r.float_req("membranes", "pitch_um")?;
     let open = r.float_req("membranes", "open_fraction")?;
     Ok(Membranes {
@@ -366,12 +359,9 @@ fn read_operation(r: &mut Reader) -> Result<(Operation, bool), CliError> {
             ))
         }
     };
-    let flow = match r.choice("operation", "flow")?.as_str() {
-        "co_current" => FlowArrangement::CoCurrent,
-        _ => FlowArrangement::CounterCurrent,
-    };
-    let mode = r.choice("operation", "length_mode")?;
-    let length_mode = if mode == "product_target" {
+    let flow = r.choose("operation", "flow", &keys::FLOWS)?;
+    let mode = r.choose("operation", "length_mode", &keys::LENGTH_MODES)?;
+    let length_mode = if mode == LengthModeChoice::ProductTarget {
         let t = r
             .float("operation", "product_target_mol_m3")?
             .ok_or_else(|| {
@@ -660,11 +650,7 @@ fn read_constraints(
 }
 
 fn read_optimizer(r: &mut Reader, n_objectives: usize) -> Result<OptimizerSettings, CliError> {
-    let algorithm = match r.choice("optimizer", "algorithm")?.as_str() {
-        "nsga2" => AlgorithmChoice::Nsga2,
-        "scalarised" => AlgorithmChoice::Scalarised,
-        _ => AlgorithmChoice::Screening,
-    };
+    let algorithm = r.choose("optimizer", "algorithm", &keys::ALGORITHMS)?;
     let seed = r.int("optimizer", "seed")?.unwrap_or(1);
     let population = r.int("optimizer", "population")?.unwrap_or(40) as usize;
     let max_evaluations = r.int("optimizer", "max_evaluations")?.unwrap_or(2000);
@@ -712,10 +698,10 @@ fn read_optimizer(r: &mut Reader, n_objectives: usize) -> Result<OptimizerSettin
             "an even number (NSGA-II mates in pairs)",
         ));
     }
-    let solver = r.choice("optimizer", "solver")?;
-    let scalarisation = r.choice("optimizer", "scalarisation")?;
+    let solver = r.choose("optimizer", "solver", &keys::SOLVERS)?;
+    let scalarisation = r.choose("optimizer", "scalarisation", &keys::SCALARISATIONS)?;
     let subproblems = r.int("optimizer", "subproblems")?.unwrap_or(11) as usize;
-    let sampler = r.choice("optimizer", "sampler")?;
+    let sampler = r.choose("optimizer", "sampler", &keys::SAMPLERS)?;
     Ok(OptimizerSettings {
         algorithm,
         seed,

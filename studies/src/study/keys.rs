@@ -191,44 +191,109 @@ const fn budget(mut spec: KeySpec) -> KeySpec {
     spec
 }
 
+use model::{FlowArrangement, PatternSide};
+use optimizer::{InitialDesign, Scalarisation, Solver};
+
+use super::choices::{Choices, LengthModeChoice, LoopModeChoice, SaltChoice, SpacerChoice};
+use super::search::{AlgorithmChoice, Objective};
 use DefaultValue::{Derived, Required, Unset, Value};
 use Kind::{Choice, Float, FloatList, Int, List, Path, Text};
 
 /// Salts the model knows.
-pub const SALTS: &[&str] = &["NaCl", "KCl", "custom"];
+pub const SALTS: Choices<SaltChoice> = Choices::new(
+    &["NaCl", "KCl", "custom"],
+    &[SaltChoice::NaCl, SaltChoice::KCl, SaltChoice::Custom],
+);
 /// Spacer choices.
-pub const SPACERS: &[&str] = &["none", "schock_miquel", "multiplier"];
+pub const SPACERS: Choices<SpacerChoice> = Choices::new(
+    &["none", "schock_miquel", "multiplier"],
+    &[
+        SpacerChoice::None,
+        SpacerChoice::SchockMiquel,
+        SpacerChoice::Multiplier,
+    ],
+);
 /// Pattern sides.
-pub const PATTERN_SIDES: &[&str] = &["cem", "aem", "both"];
+pub const PATTERN_SIDES: Choices<PatternSide> = Choices::new(
+    &["cem", "aem", "both"],
+    &[PatternSide::Cem, PatternSide::Aem, PatternSide::Both],
+);
 /// Flow arrangements.
-pub const FLOWS: &[&str] = &["co_current", "counter_current"];
+pub const FLOWS: Choices<FlowArrangement> = Choices::new(
+    &["co_current", "counter_current"],
+    &[FlowArrangement::CoCurrent, FlowArrangement::CounterCurrent],
+);
 /// Length modes.
-pub const LENGTH_MODES: &[&str] = &["fixed", "product_target"];
-/// Objective keys.
-pub const OBJECTIVES: &[&str] = &[
-    "salt_removal_rate",
-    "specific_energy",
-    "membrane_cost",
-    "levelised_cost",
-    "salt_removal_fraction",
-    "plant_specific_energy",
-    "plant_levelised_cost",
-    "plant_membrane_area",
-    "water_recovery",
-    "stack_voltage",
-];
+pub const LENGTH_MODES: Choices<LengthModeChoice> = Choices::new(
+    &["fixed", "product_target"],
+    &[LengthModeChoice::Fixed, LengthModeChoice::ProductTarget],
+);
 /// Concentrate loop modes.
-pub const LOOP_MODES: &[&str] = &["once_through", "feed_and_bleed"];
+pub const LOOP_MODES: Choices<LoopModeChoice> = Choices::new(
+    &["once_through", "feed_and_bleed"],
+    &[LoopModeChoice::OnceThrough, LoopModeChoice::FeedAndBleed],
+);
 /// Most stages a plant may have.
 pub const MAX_STAGES: usize = 8;
+/// Objective keys.
+pub const OBJECTIVES: Choices<Objective> = Choices::new(
+    &[
+        "salt_removal_rate",
+        "specific_energy",
+        "membrane_cost",
+        "levelised_cost",
+        "salt_removal_fraction",
+        "plant_specific_energy",
+        "plant_levelised_cost",
+        "plant_membrane_area",
+        "water_recovery",
+        "stack_voltage",
+    ],
+    &[
+        Objective::SaltRemovalRate,
+        Objective::SpecificEnergy,
+        Objective::MembraneCost,
+        Objective::LevelisedCost,
+        Objective::SaltRemovalFraction,
+        Objective::PlantSpecificEnergy,
+        Objective::PlantLevelisedCost,
+        Objective::PlantMembraneArea,
+        Objective::WaterRecovery,
+        Objective::StackVoltage,
+    ],
+);
 /// Algorithms.
-pub const ALGORITHMS: &[&str] = &["nsga2", "scalarised", "screening"];
+pub const ALGORITHMS: Choices<AlgorithmChoice> = Choices::new(
+    &["nsga2", "scalarised", "screening"],
+    &[
+        AlgorithmChoice::Nsga2,
+        AlgorithmChoice::Scalarised,
+        AlgorithmChoice::Screening,
+    ],
+);
 /// Single-objective solvers for scalarised runs.
-pub const SOLVERS: &[&str] = &["nelder_mead", "particle_swarm", "simulated_annealing"];
-/// Scalarisations.
-pub const SCALARISATIONS: &[&str] = &["weighted_sum", "chebyshev", "epsilon"];
+pub const SOLVERS: Choices<Solver> = Choices::new(
+    &["nelder_mead", "particle_swarm", "simulated_annealing"],
+    &[
+        Solver::NelderMead,
+        Solver::ParticleSwarm,
+        Solver::SimulatedAnnealing,
+    ],
+);
+/// Scalarisations (an epsilon constraint keeps the first objective as the one minimised).
+pub const SCALARISATIONS: Choices<Scalarisation> = Choices::new(
+    &["weighted_sum", "chebyshev", "epsilon"],
+    &[
+        Scalarisation::WeightedSum,
+        Scalarisation::Chebyshev,
+        Scalarisation::EpsilonConstraint { objective: 0 },
+    ],
+);
 /// Screening samplers.
-pub const SAMPLERS: &[&str] = &["lhs", "sobol"];
+pub const SAMPLERS: Choices<InitialDesign> = Choices::new(
+    &["lhs", "sobol"],
+    &[InitialDesign::LatinHypercube, InitialDesign::Sobol],
+);
 
 /// Sections in file order, with a one-line meaning.
 pub const SECTIONS: &[(&str, &str)] = &[
@@ -259,7 +324,7 @@ pub const SECTIONS: &[(&str, &str)] = &[
 pub const KEYS: &[KeySpec] = &[
     k("study", "name", Text, "-", 1.0, Required, None, None, "Name of the study, used in reports and run summaries."),
     k("study", "description", Text, "-", 1.0, Value("\"\""), None, None, "Free text for the report."),
-    k("water", "salt", Choice(SALTS), "-", 1.0, Value("\"NaCl\""), None, None, "Dissolved 1:1 salt; \"custom\" needs the four ionic data keys below."),
+    k("water", "salt", Choice(SALTS.words()), "-", 1.0, Value("\"NaCl\""), None, None, "Dissolved 1:1 salt; \"custom\" needs the four ionic data keys below."),
     k("water", "temperature_C", Float, "C", 1.0, Required, Some(Range { lo: 0.0, hi: 100.0, lo_open: true, hi_open: true }), closed(5.0, 40.0), "Water temperature, degrees Celsius (property data are fitted from 5 to 40 C)."),
     k("water", "feed_mol_m3", Float, "mol/m3", 1.0, Derived("give feed_mol_m3 or feed_g_L"), closed(1e-3, 6000.0), closed(1.0, 300.0), "Diluate feed concentration, mol/m3 (= mM)."),
     k("water", "feed_g_L", Float, "g/L", 1.0, Derived("give feed_mol_m3 or feed_g_L"), closed(1e-4, 350.0), None, "Diluate feed concentration as mass of salt per litre, converted with molar_mass_g_mol."),
@@ -274,7 +339,7 @@ pub const KEYS: &[KeySpec] = &[
     k("channel", "concentrate_gap_mm", Float, "mm", 1e-3, Derived("same as gap_mm (and follows it when gap is a variable)"), closed(0.01, 10.0), closed(0.1, 2.0), "Concentrate channel gap."),
     k("channel", "length_m", Float, "m", 1.0, Required, closed(1e-5, 20.0), closed(0.02, 3.0), "Flow-path length; in product-target mode the longest length searched."),
     k("channel", "width_m", Float, "m", 1.0, Required, closed(1e-5, 5.0), None, "Channel width across the flow."),
-    k("channel", "spacer", Choice(SPACERS), "-", 1.0, Value("\"none\""), None, None, "Channel filling: open slit, Schock-Miquel spacer correlations, or open-slit correlations times factors."),
+    k("channel", "spacer", Choice(SPACERS.words()), "-", 1.0, Value("\"none\""), None, None, "Channel filling: open slit, Schock-Miquel spacer correlations, or open-slit correlations times factors."),
     k("channel", "spacer_porosity", Float, "-", 1.0, Derived("0.85 with schock_miquel"), open_unit(), closed(0.7, 0.95), "Schock-Miquel spacer: volume fraction open to flow."),
     k("channel", "spacer_shadow_factor", Float, "-", 1.0, Derived("1.0 with a spacer"), closed(1.0, 10.0), None, "Spacer: factor by which the spacer raises the solution resistance."),
     k("channel", "spacer_sherwood_factor", Float, "-", 1.0, Derived("1.0 with multiplier"), pos(50.0), None, "Multiplier spacer: factor on the Sherwood number."),
@@ -283,15 +348,15 @@ pub const KEYS: &[KeySpec] = &[
     k("membranes", "aem_transport_number", Float, "-", 1.0, Required, Some(Range { lo: 0.5, hi: 1.0, lo_open: false, hi_open: false }), closed(0.85, 1.0), "Counter-ion transport number in the anion-exchange membrane."),
     k("membranes", "cem_area_resistance_ohm_cm2", Float, "Ohm cm2", 1e-4, Required, pos(1000.0), closed(0.5, 30.0), "Area resistance of the unpatterned CEM."),
     k("membranes", "aem_area_resistance_ohm_cm2", Float, "Ohm cm2", 1e-4, Required, pos(1000.0), closed(0.5, 30.0), "Area resistance of the AEM."),
-    k("membranes", "pattern_side", Choice(PATTERN_SIDES), "-", 1.0, Value("\"cem\""), None, None, "Which membrane carries the inert stripes on its diluate side."),
+    k("membranes", "pattern_side", Choice(PATTERN_SIDES.words()), "-", 1.0, Value("\"cem\""), None, None, "Which membrane carries the inert stripes on its diluate side."),
     k("membranes", "pitch_um", Float, "um", 1e-6, Required, closed(0.1, 1e5), closed(20.0, 5000.0), "Stripe period along the flow."),
     k("membranes", "open_fraction", Float, "-", 1.0, Required, closed(0.01, 1.0), closed(0.1, 1.0), "Conducting share of each period (1 = unpatterned)."),
     k("operation", "velocity_cm_s", Float, "cm/s", 1e-2, Required, closed(0.01, 200.0), closed(0.2, 30.0), "Mean diluate velocity."),
     k("operation", "concentrate_velocity_cm_s", Float, "cm/s", 1e-2, Derived("same as velocity_cm_s (and follows it when velocity is a variable)"), closed(0.01, 200.0), closed(0.2, 30.0), "Mean concentrate velocity."),
     k("operation", "cell_pair_voltage_V", Float, "V", 1.0, Derived("give cell_pair_voltage_V or cell_current_A"), pos(50.0), closed(0.05, 6.0), "Cell-pair voltage (potentiostatic drive)."),
     k("operation", "cell_current_A", Float, "A", 1.0, Derived("give cell_pair_voltage_V or cell_current_A"), pos(1e4), None, "Current through one cell pair (galvanostatic drive)."),
-    k("operation", "flow", Choice(FLOWS), "-", 1.0, Value("\"co_current\""), None, None, "Relative direction of diluate and concentrate."),
-    k("operation", "length_mode", Choice(LENGTH_MODES), "-", 1.0, Value("\"fixed\""), None, None, "Fixed channel length, or the length that reaches product_target_mol_m3."),
+    k("operation", "flow", Choice(FLOWS.words()), "-", 1.0, Value("\"co_current\""), None, None, "Relative direction of diluate and concentrate."),
+    k("operation", "length_mode", Choice(LENGTH_MODES.words()), "-", 1.0, Value("\"fixed\""), None, None, "Fixed channel length, or the length that reaches product_target_mol_m3."),
     k("operation", "product_target_mol_m3", Float, "mol/m3", 1.0, Derived("required with length_mode = \"product_target\""), pos(6000.0), None, "Wanted product concentration in product-target mode."),
     k("economics", "currency", Text, "-", 1.0, Value("\"currency units\""), None, None, "Label of the currency of every price (reports only)."),
     k("economics", "electricity_price_per_kWh", Float, "currency/kWh", 1.0, Required, closed(0.0, 100.0), None, "Electricity price."),
@@ -329,7 +394,7 @@ pub const KEYS: &[KeySpec] = &[
     k("stages.N", "velocity_cm_s", Float, "cm/s", 1e-2, Derived("the first stage's"), closed(0.01, 200.0), closed(0.2, 30.0), "Mean diluate velocity of this stage (the concentrate follows when it follows in [operation])."),
     k("stages.N", "cell_pair_voltage_V", Float, "V", 1.0, Derived("the first stage's"), pos(50.0), closed(0.05, 6.0), "Cell-pair voltage of this stage (voltage drive)."),
     k("stages.N", "cell_pairs", Int, "-", 1.0, Derived("the first stage's"), closed(1.0, 5000.0), None, "Cell pairs per stack of this stage."),
-    k("concentrate_loop", "mode", Choice(LOOP_MODES), "-", 1.0, Value("\"once_through\""), None, None, "once_through: every stage's concentrate is fed with feed water and drained; feed_and_bleed: one recirculating loop with a make-up of feed water and an equal bleed."),
+    k("concentrate_loop", "mode", Choice(LOOP_MODES.words()), "-", 1.0, Value("\"once_through\""), None, None, "once_through: every stage's concentrate is fed with feed water and drained; feed_and_bleed: one recirculating loop with a make-up of feed water and an equal bleed."),
     k("concentrate_loop", "water_recovery", Float, "-", 1.0, Derived("required with feed_and_bleed"), Some(Range { lo: 0.01, hi: 0.99, lo_open: false, hi_open: false }), closed(0.5, 0.95), "Product over plant feed (product plus bleed); sets the bleed."),
     k("rom", "constants_file", Path, "-", 1.0, Unset, None, None, "A constants file (e.g. written by `stria fit`), relative to the study file; keys given in [rom] override it."),
     k("variables.pitch", "lower_um", Float, "um", 1e-6, Required, closed(0.1, 1e5), closed(20.0, 5000.0), "Lower bound of the stripe pitch."),
@@ -344,7 +409,7 @@ pub const KEYS: &[KeySpec] = &[
     k("variables.gap", "upper_mm", Float, "mm", 1e-3, Required, closed(0.01, 10.0), closed(0.1, 2.0), "Upper bound of the gap."),
     k("variables.length", "lower_m", Float, "m", 1.0, Required, closed(1e-5, 20.0), closed(0.02, 3.0), "Lower bound of the channel length."),
     k("variables.length", "upper_m", Float, "m", 1.0, Required, closed(1e-5, 20.0), closed(0.02, 3.0), "Upper bound of the channel length."),
-    k("objectives", "list", List(OBJECTIVES), "-", 1.0, Value("[\"salt_removal_rate\", \"specific_energy\"]"), None, None, "Objectives: salt_removal_rate (mol/(m2 s), maximised), specific_energy (kWh/m3, minimised), membrane_cost (currency per m3/day of capacity, minimised), levelised_cost (currency/m3, minimised), salt_removal_fraction (-, maximised); at plant level (all stages, stacks, electrodes, rectifier, concentrate loop): plant_specific_energy (kWh/m3, minimised), plant_levelised_cost (currency/m3, minimised), plant_membrane_area (m2 per m3/day, minimised), water_recovery (-, maximised), stack_voltage (V, highest of the stages, minimised)."),
+    k("objectives", "list", List(OBJECTIVES.words()), "-", 1.0, Value("[\"salt_removal_rate\", \"specific_energy\"]"), None, None, "Objectives: salt_removal_rate (mol/(m2 s), maximised), specific_energy (kWh/m3, minimised), membrane_cost (currency per m3/day of capacity, minimised), levelised_cost (currency/m3, minimised), salt_removal_fraction (-, maximised); at plant level (all stages, stacks, electrodes, rectifier, concentrate loop): plant_specific_energy (kWh/m3, minimised), plant_levelised_cost (currency/m3, minimised), plant_membrane_area (m2 per m3/day, minimised), water_recovery (-, maximised), stack_voltage (V, highest of the stages, minimised)."),
     k("constraints", "max_product_mol_m3", Float, "mol/m3", 1.0, Unset, pos(6000.0), None, "Highest allowed product (diluate outlet) concentration."),
     k("constraints", "max_pressure_drop_kPa", Float, "kPa", 1e3, Unset, pos(1e4), None, "Highest allowed diluate pressure drop over the channel."),
     k("constraints", "max_stack_voltage_V", Float, "V", 1.0, Unset, pos(1e5), None, "Highest allowed stack voltage of any stage (above 120 V DC a stack is hazardous to touch; follow local electrical codes)."),
@@ -352,17 +417,17 @@ pub const KEYS: &[KeySpec] = &[
     k("constraints", "max_concentrate_calcite_si", Float, "-", 1.0, Unset, closed(-10.0, 10.0), None, "Highest allowed calcite saturation index of the concentrate outlet (needs [water.analysis]; g = SI - limit)."),
     k("constraints", "max_concentrate_gypsum_si", Float, "-", 1.0, Unset, closed(-10.0, 10.0), None, "Highest allowed gypsum saturation index of the concentrate outlet (needs [water.analysis]; g = SI - limit)."),
     k("constraints", "max_reynolds", Float, "-", 1.0, Unset, pos(1e6), None, "Highest allowed channel Reynolds number (laminar flow below about 2000 in an open slit)."),
-    k("optimizer", "algorithm", Choice(ALGORITHMS), "-", 1.0, Value("\"nsga2\""), None, None, "nsga2: multi-objective evolutionary search; scalarised: a sweep of single-objective sub-problems; screening: a space-filling sample."),
+    k("optimizer", "algorithm", Choice(ALGORITHMS.words()), "-", 1.0, Value("\"nsga2\""), None, None, "nsga2: multi-objective evolutionary search; scalarised: a sweep of single-objective sub-problems; screening: a space-filling sample."),
     k("optimizer", "seed", Int, "-", 1.0, Value("1"), closed(0.0, 9.007e15), None, "Seed of every random number of the run."),
     k("optimizer", "population", Int, "-", 1.0, Value("40"), closed(4.0, 1e5), None, "Population size (nsga2) or batch size (screening, scalarised); at most 100,000 (memory of the order of 200 bytes per member and objective, held several times over, and one journal line per generation of them)."),
     budget(k("optimizer", "max_evaluations", Int, "-", 1.0, Value("2000"), closed(1.0, 1e13), None, "Evaluation budget (may be raised when resuming)."),),
     budget(k("optimizer", "hours", Float, "h", 3600.0, Unset, pos(10000.0), None, "Wall-clock budget of one invocation of `stria run`."),),
     budget(k("optimizer", "stall_generations", Int, "-", 1.0, Unset, closed(1.0, 1e9), None, "Stop when the hypervolume has not grown for this many generations."),),
     k("optimizer", "archive_epsilon", FloatList, "objective units", 1.0, Unset, None, None, "Grid size per objective (in the objective's unit, from 1e-12 up) that bounds the archive of a long run."),
-    k("optimizer", "solver", Choice(SOLVERS), "-", 1.0, Value("\"nelder_mead\""), None, None, "scalarised: single-objective solver of each sub-problem."),
-    k("optimizer", "scalarisation", Choice(SCALARISATIONS), "-", 1.0, Value("\"chebyshev\""), None, None, "scalarised: how objectives are combined."),
+    k("optimizer", "solver", Choice(SOLVERS.words()), "-", 1.0, Value("\"nelder_mead\""), None, None, "scalarised: single-objective solver of each sub-problem."),
+    k("optimizer", "scalarisation", Choice(SCALARISATIONS.words()), "-", 1.0, Value("\"chebyshev\""), None, None, "scalarised: how objectives are combined."),
     k("optimizer", "subproblems", Int, "-", 1.0, Value("11"), closed(1.0, 10000.0), None, "scalarised: number of weight vectors or epsilon levels."),
-    k("optimizer", "sampler", Choice(SAMPLERS), "-", 1.0, Value("\"lhs\""), None, None, "screening: Latin hypercube or Sobol sequence."),
+    k("optimizer", "sampler", Choice(SAMPLERS.words()), "-", 1.0, Value("\"lhs\""), None, None, "screening: Latin hypercube or Sobol sequence."),
 ];
 
 /// Keys of `[rom]` besides `constants_file`: the serde names of `model::RomConstants`, with
@@ -608,24 +673,23 @@ mod tests {
             ("h/yr", "per_year"),
             ("currency/kWh", "per_kwh"),
             ("currency/m2", "per_m2"),
+            ("currency/kW", "per_kw"),
+            ("currency", "price_per"),
+            ("mg/L as HCO3", "mg_l_hco3"),
         ];
         for s in KEYS
             .iter()
             .filter(|s| !matches!(s.unit, "-" | "objective units"))
         {
-            let suffix = spelled
-                .iter()
-                .find(|(unit, _)| *unit == s.unit)
-                .map_or_else(
-                    || s.unit.replace([' ', '/'], "_"),
-                    |(_, name)| name.to_string(),
-                );
+            let name = s.key.to_lowercase();
+            let carried = match spelled.iter().find(|(unit, _)| *unit == s.unit) {
+                Some((_, spelled_out)) => name.contains(spelled_out),
+                None => name.ends_with(&s.unit.replace([' ', '/'], "_").to_lowercase()),
+            };
             assert!(
-                s.key.to_lowercase().ends_with(&suffix.to_lowercase()),
+                carried,
                 "{}.{} does not carry its unit {} in its name",
-                s.section,
-                s.key,
-                s.unit
+                s.section, s.key, s.unit
             );
         }
         // A key with a conversion factor has a unit to convert from.
@@ -655,7 +719,7 @@ mod tests {
         );
         assert_eq!(closest("zzz", ["pitch_um", "open_fraction"]), None);
         assert_eq!(
-            closest("energy", OBJECTIVES.iter().copied()),
+            closest("energy", OBJECTIVES.words().iter().copied()),
             Some("specific_energy")
         );
     }

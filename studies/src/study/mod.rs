@@ -1,5 +1,6 @@
 //! Study files: raw TOML ([`raw`]) checked into one [`Study`]; nothing downstream re-validates.
 
+pub mod choices;
 pub mod keys;
 pub mod plant;
 pub mod raw;

@@ -7,6 +7,7 @@ use model::scaling::WaterAnalysis;
 use model::stack::{ShuntGeometry, Stack};
 use model::{Design, Drive};
 
+use super::choices::LoopModeChoice;
 use super::keys::MAX_STAGES;
 use super::reader::Reader;
 use crate::error::CliError;
@@ -137,8 +138,8 @@ pub fn read_plant(
         later_stages.push(read_stage(r, &section, baseline)?);
     }
     let concentrate_loop = if r.raw.has_section("concentrate_loop") {
-        match r.choice("concentrate_loop", "mode")?.as_str() {
-            "feed_and_bleed" => {
+        match r.choose("concentrate_loop", "mode", &super::keys::LOOP_MODES)? {
+            LoopModeChoice::FeedAndBleed => {
                 let w = r
                     .float("concentrate_loop", "water_recovery")?
                     .ok_or_else(|| {
@@ -151,7 +152,7 @@ pub fn read_plant(
                     })?;
                 ConcentrateLoop::FeedAndBleed { water_recovery: w }
             }
-            _ => {
+            LoopModeChoice::OnceThrough => {
                 if r.given("concentrate_loop", "water_recovery") {
                     return Err(r.err(
                         "concentrate_loop",

@@ -5,6 +5,7 @@ use std::path::PathBuf;
 
 use toml_edit::Value;
 
+use super::choices::Choices;
 use super::keys::{self, DefaultValue, KeySpec, Kind};
 use super::raw::{Origin, RawStudy};
 use super::StudyWarning;
@@ -303,6 +304,49 @@ impl<'a> Reader<'a> {
             ));
         }
         Ok(word)
+    }
+
+    /// A choice read through its table: the word checked as [`Reader::choice`] does, then its
+    /// value. The key's `Kind::Choice` must list this table's words (the key reference and the
+    /// parser then agree by construction).
+    pub fn choose<T: Copy + PartialEq + std::fmt::Debug>(
+        &mut self,
+        section: &str,
+        key: &str,
+        table: &Choices<T>,
+    ) -> Result<T, CliError> {
+        let word = self.choice(section, key)?;
+        table.parse(&word).ok_or_else(|| {
+            self.err(
+                section,
+                key,
+                format!("\"{word}\" has no meaning in this version of stria"),
+                keys::quoted(table.words()),
+            )
+        })
+    }
+
+    /// A list of choices read through their table (see [`Reader::choose`]).
+    pub fn choose_list<T: Copy + PartialEq + std::fmt::Debug>(
+        &mut self,
+        section: &str,
+        key: &str,
+        table: &Choices<T>,
+    ) -> Result<Vec<T>, CliError> {
+        let words = self.word_list(section, key)?;
+        words
+            .iter()
+            .map(|w| {
+                table.parse(w).ok_or_else(|| {
+                    self.err(
+                        section,
+                        key,
+                        format!("\"{w}\" has no meaning in this version of stria"),
+                        keys::quoted(table.words()),
+                    )
+                })
+            })
+            .collect()
     }
 
     /// A list of words from the key's set (recorded).

@@ -133,21 +133,9 @@ pub enum Objective {
 }
 
 impl Objective {
-    /// From its study-file key.
+    /// From its study-file key (the table `keys::OBJECTIVES`).
     pub fn from_key(key: &str) -> Option<Objective> {
-        Some(match key {
-            "salt_removal_rate" => Objective::SaltRemovalRate,
-            "specific_energy" => Objective::SpecificEnergy,
-            "membrane_cost" => Objective::MembraneCost,
-            "levelised_cost" => Objective::LevelisedCost,
-            "salt_removal_fraction" => Objective::SaltRemovalFraction,
-            "plant_specific_energy" => Objective::PlantSpecificEnergy,
-            "plant_levelised_cost" => Objective::PlantLevelisedCost,
-            "plant_membrane_area" => Objective::PlantMembraneArea,
-            "water_recovery" => Objective::WaterRecovery,
-            "stack_voltage" => Objective::StackVoltage,
-            _ => return None,
-        })
+        super::keys::OBJECTIVES.parse(key)
     }
 
     /// Study-file key.
@@ -444,12 +432,12 @@ pub struct OptimizerSettings {
     pub stall_generations: Option<u64>,
     /// Archive grid, per objective in natural units.
     pub archive_epsilon: Option<Vec<f64>>,
-    /// Scalarised: solver word.
-    pub solver: String,
-    /// Scalarised: scalarisation word.
-    pub scalarisation: String,
+    /// Scalarised: the single-objective solver.
+    pub solver: optimizer::Solver,
+    /// Scalarised: how the objectives are combined.
+    pub scalarisation: optimizer::Scalarisation,
     /// Scalarised: number of sub-problems.
     pub subproblems: usize,
-    /// Screening: sampler word.
-    pub sampler: String,
+    /// Screening: the sampler.
+    pub sampler: optimizer::InitialDesign,
 }
