@@ -15,6 +15,7 @@
 pub mod files;
 pub mod problem;
 mod progress;
+mod writer;
 
 use std::collections::HashMap;
 use std::path::{Path, PathBuf};
@@ -26,8 +27,8 @@ use optimizer::{Run, StepReport, StopReason};
 
 use crate::error::{io_error, CliError};
 use crate::fsio::{
-    append_synced, create_dir_synced, read_input, remove_stale_temps, truncate_synced,
-    write_atomic, STUDY_FILE_MAX_BYTES,
+    create_dir_synced, read_input, remove_stale_temps, truncate_synced, write_atomic,
+    STUDY_FILE_MAX_BYTES,
 };
 use crate::study::{read_fingerprint, read_model_revision, Study};
 use files::{
@@ -87,6 +88,8 @@ struct State {
     journal_snapshot_bytes: u64,
     /// Journalled generations after the snapshot, to replay on resume.
     pending: Vec<JournalRecord>,
+    /// Where the run directory's writes go (a writer thread during the run loop).
+    out: writer::Writer,
 }
 
 /// Longest time front.csv and summary.json lag behind the checkpoint during a run.
@@ -335,6 +338,8 @@ pub fn run(opts: &RunOptions) -> Result<Ended, CliError> {
         .map(|h| started + Duration::from_secs_f64(h * 3600.0));
     let mut front_cache: HashMap<u64, Vec<String>> = HashMap::new();
     let mut progress = progress::Progress::new(&study, state.run.evaluations(), deadline);
+    // The commit of each generation overlaps the next one's evaluation (see `writer`).
+    state.out = writer::Writer::background();
     let ended = pool.install(|| -> Result<Ended, CliError> {
         loop {
             if let Some(r) = state.run.finished() {
@@ -360,7 +365,10 @@ pub fn run(opts: &RunOptions) -> Result<Ended, CliError> {
             )?;
             progress.update(&report, state.run.archive().len());
         }
-    })?;
+    });
+    let written = state.out.finish();
+    let ended = ended?;
+    written?;
     progress.finish();
     let elapsed = state.elapsed_before_s + started.elapsed().as_secs_f64();
     let stop_reason = match ended {
@@ -487,6 +495,7 @@ fn start(
         journal_bytes: 0,
         journal_snapshot_bytes: journal_snapshot_bytes(),
         pending: Vec::new(),
+        out: writer::Writer::direct(),
     };
     write_atomic(&rd.study(), study.to_resolved_toml().as_bytes())
         .map_err(|e| io_error("write", &rd.study(), e))?;
@@ -601,6 +610,7 @@ fn resume(rd: &RunDir, study: &Study, fingerprint: &str, csv_cap: u64) -> Result
         journal_bytes: 0,
         journal_snapshot_bytes: journal_snapshot_bytes(),
         pending,
+        out: writer::Writer::direct(),
     };
     if state.pending.is_empty() {
         cut_to_commit(rd, &state)?;
@@ -695,10 +705,12 @@ fn commit(
         rows.push_str(&files::evaluation_row(study, e));
         state.eval_rows += 1;
     }
+    // The previous generation's writes, overlapped with this generation's evaluation, are
+    // done before this one's are queued: one commit in flight at most.
+    state.out.flush()?;
     if !rows.is_empty() {
-        append_synced(&rd.evaluations(), rows.as_bytes())
-            .map_err(|e| io_error("append to", &rd.evaluations(), e))?;
         state.eval_bytes += rows.len() as u64;
+        state.out.append(rd.evaluations(), rows.into_bytes())?;
     }
     let line = format!(
         "{},{},{},{},{:.3}\n",
@@ -708,9 +720,8 @@ fn commit(
         files::num(report.hypervolume),
         elapsed
     );
-    append_synced(&rd.history(), line.as_bytes())
-        .map_err(|e| io_error("append to", &rd.history(), e))?;
     state.history_bytes += line.len() as u64;
+    state.out.append(rd.history(), line.into_bytes())?;
     let record = JournalRecord {
         generation: state.run.generation(),
         evaluations: state.run.evaluations(),
@@ -721,9 +732,8 @@ fn commit(
         outcomes: report.new.clone(),
     };
     let entry = journal_line(&record).map_err(|e| CliError::json("journal", e))?;
-    append_synced(&rd.journal(), entry.as_bytes())
-        .map_err(|e| io_error("append to", &rd.journal(), e))?;
     state.journal_bytes += entry.len() as u64;
+    state.out.append(rd.journal(), entry.into_bytes())?;
     // front.csv and summary.json follow from the checkpoint (a resume rewrites them), so on
     // fast generations they are refreshed every few seconds rather than every generation.
     if !matches!(state.derived_written, Some(t) if t.elapsed() < DERIVED_EVERY) {
@@ -748,7 +758,7 @@ fn write_snapshot(
     fingerprint: &str,
 ) -> Result<(), CliError> {
     write_checkpoint(rd, state, elapsed, fingerprint)?;
-    write_atomic(&rd.journal(), b"").map_err(|e| io_error("write", &rd.journal(), e))?;
+    state.out.replace(rd.journal(), Vec::new())?;
     state.last_snapshot = Instant::now();
     state.journal_bytes = 0;
     Ok(())
@@ -761,7 +771,7 @@ fn write_front(
     cache: &mut HashMap<u64, Vec<String>>,
 ) -> Result<(), CliError> {
     let text = files::front_csv(study, state.run.archive().members(), cache);
-    write_atomic(&rd.front(), text.as_bytes()).map_err(|e| io_error("write", &rd.front(), e))
+    state.out.replace(rd.front(), text.into_bytes())
 }
 
 fn write_checkpoint(
@@ -786,8 +796,7 @@ fn write_checkpoint(
         .strip_suffix("\"run\":null}")
         .ok_or_else(|| CliError::Runtime("checkpoint: unexpected layout".into()))?;
     let text = seal(&format!("{head}\"run\":{}}}", state.run.to_json()));
-    write_atomic(&rd.checkpoint(), text.as_bytes())
-        .map_err(|e| io_error("write", &rd.checkpoint(), e))
+    state.out.replace(rd.checkpoint(), text.into_bytes())
 }
 
 fn write_summary(
@@ -835,5 +844,5 @@ fn write_summary(
         "finished": finished,
     });
     let text = serde_json::to_string_pretty(&summary).map_err(|e| CliError::json("summary", e))?;
-    write_atomic(&rd.summary(), text.as_bytes()).map_err(|e| io_error("write", &rd.summary(), e))
+    state.out.replace(rd.summary(), text.into_bytes())
 }
