@@ -128,6 +128,16 @@ enum Command {
         /// Where to write the constants file.
         #[arg(long)]
         out: Option<PathBuf>,
+        /// Hold constants the data cannot inform at their priors (and say so) instead of
+        /// refusing the fit.
+        #[arg(long)]
+        allow_weak: bool,
+        /// Steps of every walker of the posterior sampler (the first third is burn-in).
+        #[arg(long, default_value_t = 1500, value_parser = clap::value_parser!(u64).range(30..=1_000_000))]
+        steps: u64,
+        /// Seed of the fit's starts and sampler.
+        #[arg(long)]
+        seed: Option<u64>,
     },
     /// Many studies from one campaign file (a base study and its scenarios), run on this
     /// machine or as a Slurm job array; `status` and `collect` follow them.
@@ -269,7 +279,19 @@ fn dispatch(cli: Cli) -> Result<ExitCode, CliError> {
             study,
             fit,
             out,
-        } => studies::fit::run(&data, &study, &fit, out.as_deref()).map(|()| ExitCode::SUCCESS),
+            allow_weak,
+            steps,
+            seed,
+        } => {
+            let settings = studies::fit::solve::Settings {
+                allow_weak,
+                steps: steps as usize,
+                seed: seed.unwrap_or(studies::fit::SEED),
+                ..Default::default()
+            };
+            studies::fit::run_with(&data, &study, &fit, out.as_deref(), &settings)
+                .map(|()| ExitCode::SUCCESS)
+        }
         Command::Campaign {
             file,
             out,

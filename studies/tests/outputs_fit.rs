@@ -147,8 +147,27 @@ fn the_demo_data_set_fits_with_a_sensible_error_and_writes_a_loadable_constants_
     );
     // the constants file parses as RomConstants and a study loads it through [rom] constants_file
     let text = std::fs::read_to_string(&out).unwrap();
-    let k: RomConstants = toml::from_str(&text).unwrap();
+    #[derive(serde::Deserialize)]
+    struct File {
+        rom: RomConstants,
+    }
+    let k = toml::from_str::<File>(&text).unwrap().rom;
     assert_eq!(k, cal.result.constants);
+    // the posterior: its mean is the [rom] values, its samples load through one function
+    let post = fit::posterior::load(&out).unwrap();
+    assert_eq!(post.names.len(), 4);
+    for (j, name) in post.names.iter().enumerate() {
+        assert_eq!(solve::get(&k, name), Some(post.mean[j]), "{name}");
+        let (lo, hi) = (post.interval_95[j][0], post.interval_95[j][1]);
+        assert!(lo < post.mean[j] && post.mean[j] < hi, "{name}");
+    }
+    assert!(post.samples.len() >= 1000, "{} samples", post.samples.len());
+    assert!(post.constants_at(&k, 0).is_some());
+    assert!(
+        (0.15..0.9).contains(&post.acceptance),
+        "acceptance {}",
+        post.acceptance
+    );
     let study_text = std::fs::read_to_string(demo("quick.toml")).unwrap();
     let with_file = study_text.replace(
         "[optimizer]",
@@ -270,4 +289,213 @@ fn the_binary_exits_2_on_bad_data_and_writes_nothing() {
         1,
         "nothing written"
     );
+}
+
+/// The demo data cut to their three required columns: every point is then taken at the
+/// study's conditions (one pitch, one open fraction), and the pattern constants and the
+/// overlimiting conductance trade off exactly. The fit is refused, naming them with their
+/// sigma against the prior width and their correlation; `--allow-weak` holds them at their
+/// priors, says so and fits the rest.
+#[test]
+fn data_that_cannot_inform_the_constants_are_refused_unless_allow_weak() {
+    let dir = tempfile::tempdir().unwrap();
+    let full = std::fs::read_to_string(demo("cfd_results_demo.csv")).unwrap();
+    let cut: String = full
+        .lines()
+        .filter(|l| !l.starts_with('#'))
+        .map(|l| l.split(',').take(3).collect::<Vec<_>>().join(",") + "\n")
+        .collect();
+    let data = dir.path().join("cut.csv");
+    std::fs::write(&data, cut).unwrap();
+    let out = dir.path().join("cut.constants.toml");
+    let run = |extra: &[&str]| {
+        std::process::Command::new(env!("CARGO_BIN_EXE_stria"))
+            .arg("fit")
+            .arg(&data)
+            .arg("--study")
+            .arg(demo("quick.toml"))
+            .arg("--out")
+            .arg(&out)
+            .args(extra)
+            .output()
+            .unwrap()
+    };
+    let o = run(&[]);
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert_eq!(o.status.code(), Some(2), "{err}");
+    for k in ["overlimiting_conductance", "lockin_width", "alpha_max"] {
+        assert!(err.contains(&format!("cannot inform `{k}`")), "{err}");
+    }
+    assert!(!err.contains("cannot inform `onset_voltage`"), "{err}");
+    assert!(
+        err.contains("times its prior's width") && err.contains("correlation is"),
+        "{err}"
+    );
+    assert!(
+        err.contains("--allow-weak") && !err.contains("panicked"),
+        "{err}"
+    );
+    assert!(!out.exists(), "nothing written when refused");
+
+    let o = run(&["--allow-weak", "--steps", "300"]);
+    let text = String::from_utf8_lossy(&o.stdout);
+    assert_eq!(
+        o.status.code(),
+        Some(0),
+        "{text}{}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    assert!(
+        text.contains("held at its prior (--allow-weak): alpha_max"),
+        "{text}"
+    );
+    let post = fit::posterior::load(&out).unwrap();
+    assert_eq!(post.names, vec!["onset_voltage".to_string()]);
+    let mut held = post.held_at_prior.clone();
+    held.sort();
+    assert_eq!(
+        held,
+        vec!["alpha_max", "lockin_width", "overlimiting_conductance"]
+    );
+}
+
+/// A damaged posterior is bad input (exit 2) naming the file and the section, for a study
+/// that loads the file as for `posterior::load`.
+#[test]
+fn a_damaged_posterior_is_refused_where_it_is_read() {
+    let dir = tempfile::tempdir().unwrap();
+    let k = dir.path().join("k.toml");
+    std::fs::write(
+        &k,
+        "[rom]\nonset_voltage = 18.0\n\n[posterior]\nformat = 1\nmethod = \"x\"\nnames = [\"onset_voltage\"]\n\
+         mean = [18.0]\nmode = [18.0]\ninterval_95 = [[17.0, 19.0]]\nheld_at_prior = []\nwalkers = 4\n\
+         steps = 10\nburn_in = 3\nseed = 1\nacceptance = 0.5\nautocorrelation_steps = [2.0]\n\
+         covariance = [[0.25]]\nlaplace_covariance = [[0.25]]\nsamples = [[18.0, 1.0]]\n",
+    )
+    .unwrap();
+    let e = fit::posterior::load(&k).unwrap_err();
+    assert_eq!(e.exit_code(), 2);
+    let msg = e.to_string();
+    assert!(
+        msg.contains("k.toml:4") && msg.contains("sample 1 has 2 values"),
+        "{msg}"
+    );
+    let study_text = std::fs::read_to_string(demo("quick.toml"))
+        .unwrap()
+        .replace(
+            "[optimizer]",
+            &format!(
+                "[rom]\nconstants_file = {:?}\n\n[optimizer]",
+                k.to_str().unwrap()
+            ),
+        );
+    let e = Study::from_text(&dir.path().join("s.toml"), &study_text, &[]).unwrap_err();
+    assert!(e.to_string().contains("sample 1 has 2 values"), "{e}");
+    // repaired, the study loads it and takes the [rom] value
+    let good = std::fs::read_to_string(&k)
+        .unwrap()
+        .replace("[[18.0, 1.0]]", "[[18.0]]");
+    std::fs::write(&k, good).unwrap();
+    let (s, _) = Study::from_text(&dir.path().join("s.toml"), &study_text, &[]).unwrap();
+    assert!((s.constants.onset_voltage - 18.0).abs() < 1e-12);
+    assert_eq!(fit::posterior::load(&k).unwrap().samples, vec![vec![18.0]]);
+}
+
+/// Coverage of the stated 95 % intervals (the check a calibrated posterior must pass; the
+/// frequency property of Bayesian intervals when the truth is drawn from the prior, e.g.
+/// Cook, Gelman and Rubin, J. Comput. Graph. Stat. 15 (2006) 675): 50 seeded repeats, each a
+/// truth of onset voltage and overlimiting conductance drawn from their priors
+/// (model::constants::priors), an unpatterned current-voltage curve of the model at the truth
+/// plus normal noise, and the fit's 95 % intervals. Pooled over both constants, the intervals
+/// must contain the truth in 88-99 % of cases (binomial 95 % range for 100 intervals at 0.95
+/// is about 90-99 %).
+#[test]
+fn stated_95_percent_intervals_cover_hidden_constants_in_88_to_99_percent_of_repeats() {
+    use rand::Rng;
+    let study = quick_study();
+    let b = &study.baseline;
+    let t = b.water.temperature_k;
+    let keys = ["onset_voltage", "overlimiting_conductance"];
+    let priors: Vec<_> = keys.iter().map(|k| solve::prior_of(k).unwrap()).collect();
+    let cond = InterfaceConditions {
+        salt: b.water.salt,
+        temperature_k: t,
+        concentration_mol_m3: 41.0,
+        velocity_m_s: b.operation.velocity_m_s,
+        gap_m: b.channel.gap_m,
+        position_m: 0.5 * b.channel.length_m,
+        pitch_m: 120e-6,
+        open_fraction: 1.0,
+        membrane_transport_number: b.membranes.cem_transport_number,
+        spacer: b.channel.spacer,
+        membrane: MembraneKind::Cem,
+    };
+    let settings = solve::Settings {
+        steps: 300,
+        walkers: 12,
+        ..solve::Settings::default()
+    };
+    let started = std::time::Instant::now();
+    let (mut covered, mut total) = (0usize, 0usize);
+    let mut per_key = [0usize; 2];
+    let mut acceptance = Vec::new();
+    let mut tau: f64 = 0.0;
+    for repeat in 0..50u64 {
+        let mut rng = ChaCha8Rng::seed_from_u64(1000 + repeat);
+        let values: Vec<f64> = priors.iter().map(|d| d.quantile(rng.random())).collect();
+        let truth = RomConstants {
+            onset_voltage: values[0],
+            overlimiting_conductance: values[1],
+            ..study.constants
+        };
+        let noise = 1.0; // A/m^2, a few % of the limiting current here
+        let mut text = String::from(
+            "# synthetic: the ROM at hidden constants plus seeded noise (test data)\n\
+             curve,layer_voltage_V,current_density_A_m2,open_fraction\n",
+        );
+        for k in 0..14 {
+            let v = 4.0 * k as f64;
+            let i = interface::solve(&cond, v, &truth).current_density_a_m2
+                + noise * solve::normal(&mut rng);
+            text.push_str(&format!("flat,{},{},1\n", v * vt(t), i.max(0.0)));
+        }
+        let d = data::parse(Path::new("synthetic.csv"), &text).unwrap();
+        let keys: Vec<String> = keys.iter().map(|k| k.to_string()).collect();
+        let cal = fit::calibrate_with(
+            &d,
+            &study,
+            &keys,
+            &solve::Settings {
+                seed: repeat,
+                ..settings
+            },
+        )
+        .unwrap();
+        let r = &cal.result;
+        acceptance.push(r.sampled.acceptance);
+        tau = r
+            .sampled
+            .autocorrelation_steps
+            .iter()
+            .fold(tau, |a, b| a.max(*b));
+        for j in 0..2 {
+            let (lo, hi) = r.sampled.interval_95[j];
+            let inside = lo <= values[j] && values[j] <= hi;
+            covered += usize::from(inside);
+            per_key[j] += usize::from(inside);
+            total += 1;
+        }
+    }
+    let rate = covered as f64 / total as f64;
+    eprintln!(
+        "coverage {covered}/{total} ({:.0} %; onset {}/50, conductance {}/50), acceptance {:.2}-{:.2}, \
+         largest autocorrelation time {tau:.0} steps, {:.1} s",
+        100.0 * rate,
+        per_key[0],
+        per_key[1],
+        acceptance.iter().copied().fold(f64::INFINITY, f64::min),
+        acceptance.iter().copied().fold(0.0, f64::max),
+        started.elapsed().as_secs_f64()
+    );
+    assert!((0.88..=0.99).contains(&rate), "coverage {rate}");
 }

@@ -8,6 +8,7 @@
 //! the data against the fitted curves, both atomically.
 
 pub mod data;
+pub mod posterior;
 pub mod solve;
 
 use std::path::{Path, PathBuf};
@@ -118,8 +119,19 @@ pub fn fitted_membrane(study: &Study) -> (MembraneKind, f64) {
     crate::handoff::case::simulated_membrane(&study.baseline.membranes)
 }
 
-/// Fit `keys` (empty: the default set) to the data with the study's constants as the start.
+/// Fit `keys` (empty: the default set) to the data with the study's constants as the start,
+/// with the default sampler settings.
 pub fn calibrate(data: &DataSet, study: &Study, keys: &[String]) -> Result<Calibration, CliError> {
+    calibrate_with(data, study, keys, &solve::Settings::default())
+}
+
+/// [`calibrate`] with the sampler's settings and the weak-data rule chosen.
+pub fn calibrate_with(
+    data: &DataSet,
+    study: &Study,
+    keys: &[String],
+    settings: &solve::Settings,
+) -> Result<Calibration, CliError> {
     let keys: Vec<String> = if keys.is_empty() {
         solve::DEFAULT_FIT.iter().map(|s| s.to_string()).collect()
     } else {
@@ -147,7 +159,7 @@ pub fn calibrate(data: &DataSet, study: &Study, keys: &[String]) -> Result<Calib
         &currents,
         &patterned,
         forward,
-        SEED,
+        settings,
     )
     .map_err(|r| {
         CliError::input(
@@ -157,11 +169,7 @@ pub fn calibrate(data: &DataSet, study: &Study, keys: &[String]) -> Result<Calib
             format!("the fit is refused: {}", r.0),
             format!(
                 "fittable constants {} (default {}), with data that inform each",
-                solve::BOUNDS
-                    .iter()
-                    .map(|b| b.key)
-                    .collect::<Vec<_>>()
-                    .join(", "),
+                solve::FITTABLE.join(", "),
                 solve::DEFAULT_FIT.join(", ")
             ),
         )
@@ -181,32 +189,44 @@ fn unit_of(key: &str) -> &'static str {
     model::constants::rom_meaning(key).map_or("-", |(unit, _)| unit)
 }
 
-/// The constants file: a header saying where it came from, then every `RomConstants` key.
+/// The constants file: a header saying where it came from, `[rom]` with every
+/// `RomConstants` key (the fitted ones at their posterior mean), then the `[posterior]`
+/// section ([`posterior::to_toml`], docs/formats.md#constants-file).
 pub fn constants_toml(cal: &Calibration, data_file: &Path) -> Result<String, CliError> {
     let body = toml::to_string(&cal.result.constants).map_err(|source| CliError::Toml {
         context: "constants file".into(),
         source,
     })?;
+    let r = &cal.result;
     let mut head = format!(
         "# ROM constants calibrated by `stria fit` from {}\n\
          # Load from a study with [rom] constants_file = \"<this file>\".\n\
-         # RMS misfit {:.4} A/m^2 over {} points.\n",
+         # RMS misfit {:.4} A/m^2 over {} points at the posterior mean.\n",
         data_file.display(),
-        cal.result.rms_a_m2,
-        cal.result.residuals.len()
+        r.rms_a_m2,
+        r.residuals.len()
     );
-    for (k, v, s) in &cal.result.parameters {
+    for (j, (k, v, s)) in r.parameters.iter().enumerate() {
+        let (lo, hi) = r.sampled.interval_95[j];
         head.push_str(&format!(
-            "# fitted: {k} = {} +- {} (one sigma; unit: {})\n",
+            "# fitted: {k} = {} +- {} (posterior mean and sd; 95 % interval {} to {}; unit: {})\n",
             figures::fmt_num(*v),
             figures::fmt_num(*s),
+            figures::fmt_num(lo),
+            figures::fmt_num(hi),
             unit_of(k)
         ));
     }
+    for w in &r.held_at_prior {
+        head.push_str(&format!(
+            "# held at its prior (--allow-weak): {}: the data cannot inform it\n",
+            w.key
+        ));
+    }
     head.push_str(
-        "# Every other key is the value the fit started from (the study's constants).\n\n",
+        "# Every other key is the value the fit started from (the study's constants).\n\n[rom]\n",
     );
-    Ok(head + &body)
+    Ok(head + &body + "\n" + &posterior::to_toml(&posterior::Posterior::of(&r.sampled, r)))
 }
 
 /// The plot of data against the fitted curves, per curve.
@@ -278,9 +298,20 @@ pub fn run(
     fit: &[String],
     out: Option<&Path>,
 ) -> Result<(), CliError> {
+    run_with(data_path, study_path, fit, out, &solve::Settings::default())
+}
+
+/// `stria fit` with the sampler's settings and `--allow-weak` chosen.
+pub fn run_with(
+    data_path: &Path,
+    study_path: &Path,
+    fit: &[String],
+    out: Option<&Path>,
+    settings: &solve::Settings,
+) -> Result<(), CliError> {
     let data = data::read(data_path)?;
     let (study, _) = Study::load(study_path)?;
-    let cal = calibrate(&data, &study, fit)?;
+    let cal = calibrate_with(&data, &study, fit, settings)?;
     let out: PathBuf = out
         .map(Path::to_path_buf)
         .unwrap_or_else(|| data_path.with_extension("constants.toml"));
@@ -300,23 +331,63 @@ pub fn run(
     for n in &cal.notes {
         println!("  note: {n}");
     }
-    println!("Constants (start -> fitted +- one sigma):");
-    for (k, v, s) in &r.parameters {
-        let start = solve::get(&cal.start, k).unwrap_or(f64::NAN);
+    for w in &r.held_at_prior {
         println!(
-            "  {k:<26} {:>10} -> {:>10} +- {}  {}",
+            "  held at its prior (--allow-weak): {}: the data cannot inform it: {}",
+            w.key, w.why
+        );
+    }
+    println!(
+        "Constants: start -> posterior mean +- sd [95 % interval] (mode; sd from the data alone)"
+    );
+    for (j, (k, v, s)) in r.parameters.iter().enumerate() {
+        let start = solve::get(&cal.start, k).unwrap_or(f64::NAN);
+        let (lo, hi) = r.sampled.interval_95[j];
+        println!(
+            "  {k:<26} {:>8} -> {} +- {} [{}, {}]  (mode {}; data alone +- {})  {}",
             figures::fmt_num(start),
             figures::fmt_num(*v),
             figures::fmt_num(*s),
+            figures::fmt_num(lo),
+            figures::fmt_num(hi),
+            figures::fmt_num(r.mode[j]),
+            figures::fmt_num(r.data_sigma[j]),
             unit_of(k)
         );
         if let Some((_, meaning)) = model::constants::rom_meaning(k) {
             println!("      {meaning}");
         }
     }
+    let sm = &r.sampled;
+    let tau = sm
+        .autocorrelation_steps
+        .iter()
+        .copied()
+        .fold(f64::NAN, f64::max);
+    println!(
+        "Posterior sampled by the affine-invariant ensemble (Goodman and Weare 2010): {} walkers x \
+         {} steps ({} burn-in), acceptance {:.0} %, autocorrelation time {} steps",
+        sm.walkers,
+        sm.steps,
+        sm.burn_in,
+        100.0 * sm.acceptance,
+        if tau.is_finite() {
+            format!("{tau:.0}")
+        } else {
+            "not estimable (chain too short)".into()
+        }
+    );
+    let after = (sm.steps - sm.burn_in) as f64;
+    if !tau.is_finite() || after < 10.0 * tau {
+        println!(
+            "  warning: the chain is short against its autocorrelation time; raise --steps for \
+             steadier intervals"
+        );
+    }
     for k in &r.at_bound {
         println!(
-            "  warning: {k} ended at its bound: the data may not inform it, or the bound is wrong"
+            "  warning: the mode of {k} lies at an edge of its prior: the data push it out of \
+             the prior's range, or the model misses them"
         );
     }
     let p = r.parameters.len();
@@ -324,7 +395,8 @@ pub fn run(
         for b in (a + 1)..p {
             if r.correlation[a][b].abs() > 0.95 {
                 println!(
-                    "  warning: {} and {} are strongly correlated ({:.2}): the data barely separate them",
+                    "  note: {} and {} are strongly correlated ({:.2}): the data fix a \
+                     combination of them better than either",
                     r.parameters[a].0, r.parameters[b].0, r.correlation[a][b]
                 );
             }

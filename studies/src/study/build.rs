@@ -534,8 +534,9 @@ pub fn read_constants_file(path: &Path, text: &str) -> Result<Vec<(String, f64)>
                     "[rom] followed by the constants, or the constants at the top of the file",
                 ));
             };
-            // With a [rom] section, anything outside it would be silently ignored.
-            if let Some((other, _)) = root.iter().find(|(k, _)| *k != "rom") {
+            // With a [rom] section, anything outside it (but the posterior `stria fit`
+            // writes) would be silently ignored.
+            if let Some((other, _)) = root.iter().find(|(k, _)| *k != "rom" && *k != "posterior") {
                 return Err(CliError::input(
                     path,
                     line_of_key(root, other),
@@ -547,9 +548,14 @@ pub fn read_constants_file(path: &Path, text: &str) -> Result<Vec<(String, f64)>
             t
         }
     };
+    // the posterior's shape is checked here, so a study never loads a damaged one
+    crate::fit::posterior::parse(path, text)?;
     let known: Vec<String> = keys::rom_keys().into_iter().map(|(k, _)| k).collect();
     let mut out = Vec::new();
     for (key, item) in table.iter() {
+        if key == "posterior" && item.is_table() {
+            continue;
+        }
         let line = line_of_key(table, key);
         if !known.iter().any(|k| k == key) {
             let (msg, allowed) = unknown_key_help("rom", key);
