@@ -25,7 +25,7 @@ pub fn bound_warnings(study: &Study) -> Vec<String> {
             points.push((
                 format!(
                     "{} {label} bound ({} {})",
-                    v.kind.name(),
+                    v.section().trim_start_matches("variables."),
                     crate::eval::sig(value / to_si, 4),
                     if unit.is_empty() { "-" } else { &unit }
                 ),
@@ -36,10 +36,18 @@ pub fn bound_warnings(study: &Study) -> Vec<String> {
     let mut out: Vec<String> = Vec::new();
     let mut seen: Vec<String> = Vec::new();
     for (label, x) in points {
-        let design = study.design_at(&x);
-        match model::evaluate(&design, &study.constants, &Options::default()) {
-            Ok(e) => {
-                for w in e.warnings {
+        // Every stage's validity warnings (a study without plant sections has one stage).
+        match study.evaluate_plant_at(&x, &Options::default()) {
+            Ok(p) => {
+                let staged = p.stage_evaluations.iter().enumerate().flat_map(|(i, e)| {
+                    e.warnings.iter().cloned().map(move |mut w| {
+                        if i > 0 {
+                            w.message = format!("stage {}: {}", i + 1, w.message);
+                        }
+                        w
+                    })
+                });
+                for w in staged {
                     let key = format!("{label}|{}|{}", w.quantity, w.message);
                     if !seen.contains(&key) {
                         seen.push(key);

@@ -302,12 +302,12 @@ pub fn x_of(run: &RunDir, row: &FrontRow) -> Result<Vec<f64>, CliError> {
         .variables
         .iter()
         .map(|v| {
-            let col = v.kind.column();
-            let i = run.front.col(col).ok_or_else(|| {
+            let col = v.column();
+            let i = run.front.col(&col).ok_or_else(|| {
                 CliError::input(
                     &path,
                     Some(1),
-                    col,
+                    col.clone(),
                     format!("column `{col}` of the study's variable is missing"),
                     "front.csv written for this study",
                 )

@@ -262,3 +262,117 @@ fn bad_plant_input_is_refused_at_its_line() {
         "water analysis",
     );
 }
+
+#[test]
+fn stages_with_very_different_layers_find_different_best_pitches() {
+    // Stage 1: a 0.3 mm gap at 8 cm/s over 0.3 m (a thin diffusion layer); stage 2: a 1.5 mm
+    // gap at 1 cm/s over 1 m (a layer several times thicker). The vortices scale with the
+    // layer, so a search of both stages' pitches for the lowest product concentration should
+    // put stage 2's best pitch well above stage 1's.
+    let dir = tempfile::tempdir().unwrap();
+    let mut s = std::fs::read_to_string(demo("plant.toml")).unwrap();
+    let stages = s.find("[stages.2]").unwrap();
+    let looped = s.find("[concentrate_loop]").unwrap();
+    s.replace_range(
+        stages..looped,
+        "[stages.2]\ngap_mm = 1.5\nvelocity_cm_s = 1.0\nlength_m = 1.0\ncell_pair_voltage_V = 2.0\n\n",
+    );
+    let vars = s.find("[variables.pitch]").unwrap();
+    s.truncate(vars);
+    s.push_str(
+        "[variables.pitch]\nlower_um = 20.0\nupper_um = 3000.0\n\n\
+         [variables.stage2.pitch]\nlower_um = 20.0\nupper_um = 3000.0\n\n\
+         [objectives]\nlist = [\"product_concentration\"]\n\n\
+         [optimizer]\nalgorithm = \"screening\"\nsampler = \"sobol\"\nseed = 3\n\
+         population = 64\nmax_evaluations = 256\n",
+    );
+    for (from, to) in [
+        ("gap_mm = 0.5 ", "gap_mm = 0.3 "),
+        ("velocity_cm_s = 4.0 ", "velocity_cm_s = 8.0 "),
+        ("length_m = 0.45 ", "length_m = 0.3 "),
+    ] {
+        assert!(s.contains(from), "{from}");
+        s = s.replacen(from, to, 1);
+    }
+    let study = dir.path().join("graded.toml");
+    std::fs::write(&study, s).unwrap();
+    let out = dir.path().join("run");
+    let o = stria(&[
+        "run",
+        study.to_str().unwrap(),
+        "--out",
+        out.to_str().unwrap(),
+    ]);
+    assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
+    let front = std::fs::read_to_string(out.join("front.csv")).unwrap();
+    let mut lines = front.lines();
+    let header: Vec<&str> = lines.next().unwrap().split(',').collect();
+    let best: Vec<f64> = lines
+        .next()
+        .unwrap()
+        .split(',')
+        .map(|x| x.parse().unwrap_or(f64::NAN))
+        .collect();
+    let col = |name: &str| best[header.iter().position(|h| *h == name).unwrap()];
+    let (p1, p2) = (col("pitch_m"), col("stage2_pitch_m"));
+    assert!(p2 > 2.0 * p1, "stage 1 best pitch {p1} m, stage 2 {p2} m");
+}
+
+#[test]
+fn stage_and_recovery_variables_are_checked() {
+    let dir = tempfile::tempdir().unwrap();
+    // A variable of a stage the study does not have.
+    let p = plant_with(
+        dir.path(),
+        &[("[variables.pitch]", "[variables.stage3.pitch]")],
+    );
+    assert_bad(
+        &stria(&["check", p.to_str().unwrap()]),
+        line_of(&p, "[variables.stage3.pitch]"),
+        "variables.stage3.pitch",
+        "stage 3 is not in the study",
+    );
+    // The recovery is a variable only with a feed-and-bleed loop.
+    let p = plant_with(
+        dir.path(),
+        &[
+            ("mode = \"feed_and_bleed\"", "mode = \"once_through\""),
+            ("water_recovery = 0.85", ""),
+            (
+                "[objectives]",
+                "[variables.water_recovery]\nlower = 0.6\nupper = 0.9\n\n[objectives]",
+            ),
+        ],
+    );
+    assert_bad(
+        &stria(&["check", p.to_str().unwrap()]),
+        line_of(&p, "lower = 0.6"),
+        "variables.water_recovery",
+        "feed-and-bleed",
+    );
+    // A stage variable and the recovery variable: CSV columns of their own.
+    let p = plant_with(
+        dir.path(),
+        &[(
+            "[objectives]",
+            "[variables.stage2.pitch]\nlower_um = 50.0\nupper_um = 800.0\n\n\
+             [variables.water_recovery]\nlower = 0.6\nupper = 0.9\n\n[objectives]",
+        )],
+    );
+    let out = dir.path().join("run");
+    let o = stria(&[
+        "run",
+        p.to_str().unwrap(),
+        "--out",
+        out.to_str().unwrap(),
+        "--max-evals",
+        "80",
+    ]);
+    assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
+    let header = std::fs::read_to_string(out.join("evaluations.csv")).unwrap();
+    let header = header.lines().next().unwrap();
+    assert!(
+        header.contains("stage2_pitch_m") && header.contains("water_recovery"),
+        "{header}"
+    );
+}

@@ -250,7 +250,7 @@ fn csv_line(fields: &[String]) -> String {
 /// Header of evaluations.csv.
 pub fn evaluations_header(study: &Study) -> String {
     let mut h: Vec<String> = vec!["id".into(), "generation".into()];
-    h.extend(study.variables.iter().map(|v| v.kind.column().to_string()));
+    h.extend(study.variables.iter().map(|v| v.column()));
     h.extend(study.objectives.iter().map(|o| o.column().to_string()));
     h.extend(study.constraints.iter().map(|c| c.column().to_string()));
     h.push("feasible".into());
@@ -326,7 +326,7 @@ fn extras_kept(study: &Study) -> Vec<&'static str> {
 /// Header of front.csv.
 pub fn front_header(study: &Study) -> String {
     let mut h: Vec<String> = vec!["id".into()];
-    h.extend(study.variables.iter().map(|v| v.kind.column().to_string()));
+    h.extend(study.variables.iter().map(|v| v.column()));
     h.extend(study.objectives.iter().map(|o| o.column().to_string()));
     h.extend(extras_kept(study).iter().map(|s| s.to_string()));
     csv_line(&h)

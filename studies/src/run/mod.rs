@@ -816,7 +816,7 @@ fn write_summary(
     let variables: Vec<serde_json::Value> = study
         .variables
         .iter()
-        .map(|v| serde_json::json!({"key": v.kind.column(), "unit": v.kind.unit(), "lower": v.lower, "upper": v.upper}))
+        .map(|v| serde_json::json!({"key": v.column(), "unit": v.kind.unit(), "lower": v.lower, "upper": v.upper}))
         .collect();
     let constraints: Vec<serde_json::Value> = study
         .constraints

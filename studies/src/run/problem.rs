@@ -24,7 +24,7 @@ impl Problem for StudyProblem<'_> {
         self.study
             .variables
             .iter()
-            .map(|v| Variable::new(v.kind.column(), v.lower, v.upper))
+            .map(|v| Variable::new(v.column(), v.lower, v.upper))
             .collect()
     }
 

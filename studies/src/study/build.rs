@@ -53,7 +53,7 @@ pub fn build(raw: &RawStudy) -> Result<(Study, Vec<StudyWarning>), CliError> {
         economics,
     };
     let plant = super::plant::read_plant(&mut r, &baseline, baseline.water.temperature_k - 273.15)?;
-    let variables = read_variables(&mut r, &baseline)?;
+    let variables = read_variables(&mut r, &baseline, &plant)?;
     let objectives: Vec<Objective> = r.choose_list("objectives", "list", &keys::OBJECTIVES)?;
     let constraints = read_constraints(&mut r, &plant)?;
     let optimizer = read_optimizer(&mut r, objectives.len())?;
@@ -576,41 +576,89 @@ pub fn read_constants_file(path: &Path, text: &str) -> Result<Vec<(String, f64)>
     Ok(out)
 }
 
-fn read_variables(r: &mut Reader, baseline: &Design) -> Result<Vec<DesignVariable>, CliError> {
+fn read_variables(
+    r: &mut Reader,
+    baseline: &Design,
+    plant: &super::plant::PlantSpec,
+) -> Result<Vec<DesignVariable>, CliError> {
     let mut out = Vec::new();
-    for kind in VariableKind::ALL {
-        let section = format!("variables.{}", kind.name());
-        if !r.raw.has_section(&section) {
-            continue;
+    for stage in 1..=plant.later_stages.len() + 1 {
+        for kind in VariableKind::ALL {
+            let v = DesignVariable {
+                kind,
+                lower: 0.0,
+                upper: 0.0,
+                stage,
+            };
+            let section = v.section();
+            if !r.raw.has_section(&section) {
+                continue;
+            }
+            if stage > 1 && kind == VariableKind::WaterRecovery {
+                continue;
+            }
+            let (suffix, to_si) = kind.bound_unit();
+            let lo_key = format!("lower{suffix}");
+            let hi_key = format!("upper{suffix}");
+            let lo = r.float_req(&section, &lo_key)?;
+            let hi = r.float_req(&section, &hi_key)?;
+            if lo >= hi {
+                return Err(r.err(
+                    &section,
+                    &hi_key,
+                    format!("upper bound {hi} is not above lower bound {lo}"),
+                    format!("{hi_key} > {lo_key}"),
+                ));
+            }
+            if kind == VariableKind::CellPairVoltage
+                && !matches!(baseline.operation.drive, Drive::Voltage { .. })
+            {
+                return Err(r.err(
+                    &section,
+                    &lo_key,
+                    "the cell-pair voltage is a variable but the study is driven by current",
+                    "give operation.cell_pair_voltage_V instead of cell_current_A",
+                ));
+            }
+            if kind == VariableKind::WaterRecovery
+                && !matches!(
+                    plant.concentrate_loop,
+                    model::plant::ConcentrateLoop::FeedAndBleed { .. }
+                )
+            {
+                return Err(r.err(
+                    &section,
+                    &lo_key,
+                    "the water recovery is a variable only with a feed-and-bleed concentrate loop",
+                    "[concentrate_loop] mode = \"feed_and_bleed\" with its water_recovery",
+                ));
+            }
+            out.push(DesignVariable {
+                kind,
+                lower: lo * to_si,
+                upper: hi * to_si,
+                stage,
+            });
         }
-        let (suffix, to_si) = kind.bound_unit();
-        let lo_key = format!("lower{suffix}");
-        let hi_key = format!("upper{suffix}");
-        let lo = r.float_req(&section, &lo_key)?;
-        let hi = r.float_req(&section, &hi_key)?;
-        if lo >= hi {
-            return Err(r.err(
-                &section,
-                &hi_key,
-                format!("upper bound {hi} is not above lower bound {lo}"),
-                format!("{hi_key} > {lo_key}"),
-            ));
+    }
+    // A stage variable of a stage that does not exist.
+    for n in plant.later_stages.len() + 2..=keys::MAX_STAGES {
+        for kind in VariableKind::ALL {
+            let section = format!("variables.stage{n}.{}", kind.name());
+            if r.raw.has_section(&section) {
+                let (file, line) = r.locate(&section, "");
+                return Err(CliError::input(
+                    file,
+                    line,
+                    section,
+                    format!("stage {n} is not in the study"),
+                    format!(
+                        "a [stages.{n}] section, or variables of stages 1 to {}",
+                        plant.later_stages.len() + 1
+                    ),
+                ));
+            }
         }
-        if kind == VariableKind::CellPairVoltage
-            && !matches!(baseline.operation.drive, Drive::Voltage { .. })
-        {
-            return Err(r.err(
-                &section,
-                &lo_key,
-                "the cell-pair voltage is a variable but the study is driven by current",
-                "give operation.cell_pair_voltage_V instead of cell_current_A",
-            ));
-        }
-        out.push(DesignVariable {
-            kind,
-            lower: lo * to_si,
-            upper: hi * to_si,
-        });
     }
     Ok(out)
 }

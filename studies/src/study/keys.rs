@@ -248,6 +248,7 @@ pub const OBJECTIVES: Choices<Objective> = Choices::new(
         "plant_membrane_area",
         "water_recovery",
         "stack_voltage",
+        "product_concentration",
     ],
     &[
         Objective::SaltRemovalRate,
@@ -260,6 +261,7 @@ pub const OBJECTIVES: Choices<Objective> = Choices::new(
         Objective::PlantMembraneArea,
         Objective::WaterRecovery,
         Objective::StackVoltage,
+        Objective::ProductConcentration,
     ],
 );
 /// Algorithms.
@@ -314,6 +316,7 @@ pub const SECTIONS: &[(&str, &str)] = &[
     ("variables.cell_pair_voltage", "Design variable: cell-pair voltage, voltage drive only (CSV column `cell_pair_voltage_V`)."),
     ("variables.gap", "Design variable: channel gap (CSV column `gap_m`)."),
     ("variables.length", "Design variable: channel length (CSV column `length_m`)."),
+    ("variables.water_recovery", "Design variable: water recovery of a feed-and-bleed concentrate loop (CSV column `water_recovery`). Any other variable may name a later stage: [variables.stage2.pitch] searches stage 2's pitch (CSV column `stage2_pitch_m`), with the same bound keys."),
     ("objectives", "What to optimise; each objective has a fixed direction."),
     ("constraints", "Limits a design must respect to be feasible; each is optional."),
     ("optimizer", "The search algorithm and its budget."),
@@ -409,7 +412,9 @@ pub const KEYS: &[KeySpec] = &[
     k("variables.gap", "upper_mm", Float, "mm", 1e-3, Required, closed(0.01, 10.0), closed(0.1, 2.0), "Upper bound of the gap."),
     k("variables.length", "lower_m", Float, "m", 1.0, Required, closed(1e-5, 20.0), closed(0.02, 3.0), "Lower bound of the channel length."),
     k("variables.length", "upper_m", Float, "m", 1.0, Required, closed(1e-5, 20.0), closed(0.02, 3.0), "Upper bound of the channel length."),
-    k("objectives", "list", List(OBJECTIVES.words()), "-", 1.0, Value("[\"salt_removal_rate\", \"specific_energy\"]"), None, None, "Objectives: salt_removal_rate (mol/(m2 s), maximised), specific_energy (kWh/m3, minimised), membrane_cost (currency per m3/day of capacity, minimised), levelised_cost (currency/m3, minimised), salt_removal_fraction (-, maximised); at plant level (all stages, stacks, electrodes, rectifier, concentrate loop): plant_specific_energy (kWh/m3, minimised), plant_levelised_cost (currency/m3, minimised), plant_membrane_area (m2 per m3/day, minimised), water_recovery (-, maximised), stack_voltage (V, highest of the stages, minimised)."),
+    k("variables.water_recovery", "lower", Float, "-", 1.0, Required, Some(Range { lo: 0.01, hi: 0.99, lo_open: false, hi_open: false }), closed(0.5, 0.95), "Lower bound of the water recovery."),
+    k("variables.water_recovery", "upper", Float, "-", 1.0, Required, Some(Range { lo: 0.01, hi: 0.99, lo_open: false, hi_open: false }), closed(0.5, 0.95), "Upper bound of the water recovery."),
+    k("objectives", "list", List(OBJECTIVES.words()), "-", 1.0, Value("[\"salt_removal_rate\", \"specific_energy\"]"), None, None, "Objectives: salt_removal_rate (mol/(m2 s), maximised), specific_energy (kWh/m3, minimised), membrane_cost (currency per m3/day of capacity, minimised), levelised_cost (currency/m3, minimised), salt_removal_fraction (-, maximised); at plant level (all stages, stacks, electrodes, rectifier, concentrate loop): plant_specific_energy (kWh/m3, minimised), plant_levelised_cost (currency/m3, minimised), plant_membrane_area (m2 per m3/day, minimised), water_recovery (-, maximised), stack_voltage (V, highest of the stages, minimised), product_concentration (mol/m3, the last stage's outlet, minimised)."),
     k("constraints", "max_product_mol_m3", Float, "mol/m3", 1.0, Unset, pos(6000.0), None, "Highest allowed product (diluate outlet) concentration."),
     k("constraints", "max_pressure_drop_kPa", Float, "kPa", 1e3, Unset, pos(1e4), None, "Highest allowed diluate pressure drop over the channel."),
     k("constraints", "max_stack_voltage_V", Float, "V", 1.0, Unset, pos(1e5), None, "Highest allowed stack voltage of any stage (above 120 V DC a stack is hazardous to touch; follow local electrical codes)."),
@@ -472,12 +477,27 @@ fn rom_allowed(key: &str) -> String {
         .unwrap_or_else(|| "finite".to_string())
 }
 
-/// The table's name of a section: `stages.2`, `stages.3`, ... are all `stages.N`.
+/// The table's name of a section: `stages.2`, `stages.3`, ... are all `stages.N`, and
+/// `variables.stage2.pitch` is `variables.pitch`.
 pub fn table_section(section: &str) -> &str {
-    match section.strip_prefix("stages.") {
-        Some(n) if stage_number(n).is_some() => "stages.N",
-        _ => section,
+    if let Some(n) = section.strip_prefix("stages.") {
+        if stage_number(n).is_some() {
+            return "stages.N";
+        }
     }
+    if let Some(rest) = section.strip_prefix("variables.stage") {
+        if let Some((n, name)) = rest.split_once('.') {
+            if stage_number(n).is_some() && name != "water_recovery" {
+                if let Some((s, _)) = SECTIONS
+                    .iter()
+                    .find(|(s, _)| s.strip_prefix("variables.") == Some(name))
+                {
+                    return s;
+                }
+            }
+        }
+    }
+    section
 }
 
 /// The stage number of a `stages.N` suffix: 2 to [`MAX_STAGES`].

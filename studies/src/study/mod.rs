@@ -12,8 +12,8 @@ mod build;
 use std::fmt;
 use std::path::{Path, PathBuf};
 
-use model::plant::{evaluate_plant, Plant, PlantEvaluation};
-use model::{Design, Drive, Evaluation, Options, RomConstants};
+use model::plant::{evaluate_plant, ConcentrateLoop, Plant, PlantEvaluation};
+use model::{Design, Evaluation, Options, RomConstants};
 
 pub use reader::Resolved;
 pub use search::{
@@ -120,27 +120,13 @@ impl Study {
     pub fn design_at(&self, x: &[f64]) -> Design {
         let mut d = self.baseline;
         for (v, &value) in self.variables.iter().zip(x) {
-            match v.kind {
-                VariableKind::Pitch => d.membranes.pitch_m = value,
-                VariableKind::OpenFraction => d.membranes.open_fraction = value,
-                VariableKind::Velocity => {
-                    d.operation.velocity_m_s = value;
-                    if self.concentrate_velocity_follows {
-                        d.operation.concentrate_velocity_m_s = value;
-                    }
-                }
-                VariableKind::CellPairVoltage => {
-                    d.operation.drive = Drive::Voltage {
-                        cell_pair_voltage_v: value,
-                    }
-                }
-                VariableKind::Gap => {
-                    d.channel.gap_m = value;
-                    if self.concentrate_gap_follows {
-                        d.channel.concentrate_gap_m = value;
-                    }
-                }
-                VariableKind::Length => d.channel.length_m = value,
+            if v.stage == 1 {
+                v.kind.set(
+                    &mut d,
+                    value,
+                    self.concentrate_gap_follows,
+                    self.concentrate_velocity_follows,
+                );
             }
         }
         d
@@ -148,9 +134,15 @@ impl Study {
 
     /// The baseline values of the variables (SI).
     pub fn baseline_x(&self) -> Vec<f64> {
+        let plant = self.baseline_plant();
         self.variables
             .iter()
-            .map(|v| v.kind.get(&self.baseline))
+            .map(|v| match (v.kind, plant.concentrate_loop) {
+                (VariableKind::WaterRecovery, ConcentrateLoop::FeedAndBleed { water_recovery }) => {
+                    water_recovery
+                }
+                _ => v.kind.get(&plant.stages[v.stage - 1].design),
+            })
             .collect()
     }
 
@@ -163,13 +155,29 @@ impl Study {
         )
     }
 
-    /// The plant of the design at `x`.
+    /// The plant of the design at `x`: stage 1 is [`Self::design_at`]; later stages follow it
+    /// except where they override, and then take their own variables.
     pub fn plant_at(&self, x: &[f64]) -> Plant {
-        self.plant.plant(
+        let mut plant = self.plant.plant(
             &self.design_at(x),
             self.concentrate_gap_follows,
             self.concentrate_velocity_follows,
-        )
+        );
+        for (v, &value) in self.variables.iter().zip(x) {
+            if v.kind == VariableKind::WaterRecovery {
+                plant.concentrate_loop = ConcentrateLoop::FeedAndBleed {
+                    water_recovery: value,
+                };
+            } else if v.stage > 1 {
+                v.kind.set(
+                    &mut plant.stages[v.stage - 1].design,
+                    value,
+                    self.concentrate_gap_follows,
+                    self.concentrate_velocity_follows,
+                );
+            }
+        }
+        plant
     }
 
     /// Evaluate the plant at `x` (one model evaluation per stage, more around a concentrate
@@ -228,6 +236,15 @@ impl Study {
                 sections.extend(stages.iter().map(|n| format!("stages.{n}")));
             } else {
                 sections.push(section.to_string());
+                if let Some(name) = section.strip_prefix("variables.") {
+                    // The same variable of later stages, in stage order.
+                    for n in 2..=keys::MAX_STAGES {
+                        let staged = format!("variables.stage{n}.{name}");
+                        if self.resolved.iter().any(|r| r.section == staged) {
+                            sections.push(staged);
+                        }
+                    }
+                }
             }
         }
         for section in &sections {

@@ -194,6 +194,47 @@ impl RawStudy {
                         .and_then(|(k, _)| k.span())
                         .map(|s| line_of(text, s.start))
                         .or(line);
+                    if let Some(n) = var
+                        .strip_prefix("stage")
+                        .filter(|n| keys::stage_number(n).is_some())
+                    {
+                        // [variables.stage2.pitch]: a variable of a later stage.
+                        let stage = sub.as_table_like().ok_or_else(|| {
+                            CliError::input(
+                                file,
+                                vline,
+                                format!("variables.{var}"),
+                                "must be a table of variables",
+                                format!("[variables.stage{n}.<name>] sections"),
+                            )
+                        })?;
+                        for (name, item) in stage.iter() {
+                            let nline = stage
+                                .get_key_value(name)
+                                .and_then(|(k, _)| k.span())
+                                .map(|s| line_of(text, s.start))
+                                .or(vline);
+                            let section = format!("variables.stage{n}.{}", shown_name(name));
+                            if !is_section(&section) {
+                                let names: Vec<&str> = variable_names()
+                                    .into_iter()
+                                    .filter(|v| *v != "water_recovery")
+                                    .collect();
+                                return Err(CliError::input(
+                                    file,
+                                    nline,
+                                    section,
+                                    format!(
+                                        "unknown design variable `{}` of stage {n}",
+                                        shown_name(name)
+                                    ),
+                                    names.join(", "),
+                                ));
+                            }
+                            raw.read_section(text, &section, item, nline)?;
+                        }
+                        continue;
+                    }
                     let section = format!("variables.{}", shown_name(var));
                     if !is_section(&section) {
                         let names = variable_names();

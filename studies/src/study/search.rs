@@ -19,17 +19,20 @@ pub enum VariableKind {
     Gap,
     /// Channel length.
     Length,
+    /// Water recovery of a feed-and-bleed concentrate loop (the plant's, not a stage's).
+    WaterRecovery,
 }
 
 impl VariableKind {
     /// All, in file order.
-    pub const ALL: [VariableKind; 6] = [
+    pub const ALL: [VariableKind; 7] = [
         VariableKind::Pitch,
         VariableKind::OpenFraction,
         VariableKind::Velocity,
         VariableKind::CellPairVoltage,
         VariableKind::Gap,
         VariableKind::Length,
+        VariableKind::WaterRecovery,
     ];
 
     /// Name in the study file (`[variables.<name>]`).
@@ -41,6 +44,7 @@ impl VariableKind {
             VariableKind::CellPairVoltage => "cell_pair_voltage",
             VariableKind::Gap => "gap",
             VariableKind::Length => "length",
+            VariableKind::WaterRecovery => "water_recovery",
         }
     }
 
@@ -53,6 +57,7 @@ impl VariableKind {
             VariableKind::CellPairVoltage => "cell_pair_voltage_V",
             VariableKind::Gap => "gap_m",
             VariableKind::Length => "length_m",
+            VariableKind::WaterRecovery => "water_recovery",
         }
     }
 
@@ -60,7 +65,7 @@ impl VariableKind {
     pub fn unit(self) -> &'static str {
         match self {
             VariableKind::Pitch | VariableKind::Gap | VariableKind::Length => "m",
-            VariableKind::OpenFraction => "-",
+            VariableKind::OpenFraction | VariableKind::WaterRecovery => "-",
             VariableKind::Velocity => "m/s",
             VariableKind::CellPairVoltage => "V",
         }
@@ -70,7 +75,7 @@ impl VariableKind {
     pub fn bound_unit(self) -> (&'static str, f64) {
         match self {
             VariableKind::Pitch => ("_um", 1e-6),
-            VariableKind::OpenFraction => ("", 1.0),
+            VariableKind::OpenFraction | VariableKind::WaterRecovery => ("", 1.0),
             VariableKind::Velocity => ("_cm_s", 1e-2),
             VariableKind::CellPairVoltage => ("_V", 1.0),
             VariableKind::Gap => ("_mm", 1e-3),
@@ -78,7 +83,7 @@ impl VariableKind {
         }
     }
 
-    /// The baseline value in SI.
+    /// The value in a cell-pair design, SI (the water recovery is the plant's: NaN here).
     pub fn get(self, d: &Design) -> f64 {
         match self {
             VariableKind::Pitch => d.membranes.pitch_m,
@@ -92,6 +97,35 @@ impl VariableKind {
             },
             VariableKind::Gap => d.channel.gap_m,
             VariableKind::Length => d.channel.length_m,
+            VariableKind::WaterRecovery => f64::NAN,
+        }
+    }
+
+    /// Set the value in a cell-pair design (the concentrate gap and velocity too where they
+    /// follow); the water recovery is the plant's and is not set here.
+    pub fn set(self, d: &mut Design, value: f64, gap_follows: bool, velocity_follows: bool) {
+        match self {
+            VariableKind::Pitch => d.membranes.pitch_m = value,
+            VariableKind::OpenFraction => d.membranes.open_fraction = value,
+            VariableKind::Velocity => {
+                d.operation.velocity_m_s = value;
+                if velocity_follows {
+                    d.operation.concentrate_velocity_m_s = value;
+                }
+            }
+            VariableKind::CellPairVoltage => {
+                d.operation.drive = Drive::Voltage {
+                    cell_pair_voltage_v: value,
+                }
+            }
+            VariableKind::Gap => {
+                d.channel.gap_m = value;
+                if gap_follows {
+                    d.channel.concentrate_gap_m = value;
+                }
+            }
+            VariableKind::Length => d.channel.length_m = value,
+            VariableKind::WaterRecovery => {}
         }
     }
 }
@@ -105,6 +139,28 @@ pub struct DesignVariable {
     pub lower: f64,
     /// Upper bound, SI.
     pub upper: f64,
+    /// The stage it belongs to, 1 for the study's own design (and for the water recovery).
+    pub stage: usize,
+}
+
+impl DesignVariable {
+    /// Its study-file section: `variables.pitch`, or `variables.stage2.pitch` for stage 2.
+    pub fn section(&self) -> String {
+        if self.stage == 1 {
+            format!("variables.{}", self.kind.name())
+        } else {
+            format!("variables.stage{}.{}", self.stage, self.kind.name())
+        }
+    }
+
+    /// Its CSV column: `pitch_m`, or `stage2_pitch_m` for stage 2.
+    pub fn column(&self) -> String {
+        if self.stage == 1 {
+            self.kind.column().to_string()
+        } else {
+            format!("stage{}_{}", self.stage, self.kind.column())
+        }
+    }
 }
 
 /// An objective with its fixed direction.
@@ -130,6 +186,8 @@ pub enum Objective {
     WaterRecovery,
     /// Highest stack voltage of the stages, V, minimised.
     StackVoltage,
+    /// Product concentration of the plant (last stage's diluate outlet), mol/m3, minimised.
+    ProductConcentration,
 }
 
 impl Objective {
@@ -151,6 +209,7 @@ impl Objective {
             Objective::PlantMembraneArea => "plant_membrane_area",
             Objective::WaterRecovery => "water_recovery",
             Objective::StackVoltage => "stack_voltage",
+            Objective::ProductConcentration => "product_concentration",
         }
     }
 
@@ -166,6 +225,7 @@ impl Objective {
             Objective::PlantLevelisedCost => "currency/m3",
             Objective::PlantMembraneArea => "m2/(m3/day)",
             Objective::StackVoltage => "V",
+            Objective::ProductConcentration => "mol/m3",
         }
     }
 
@@ -182,6 +242,7 @@ impl Objective {
             Objective::PlantMembraneArea => "plant_membrane_area_m2_per_m3_day",
             Objective::WaterRecovery => "water_recovery",
             Objective::StackVoltage => "stack_voltage_V",
+            Objective::ProductConcentration => "product_concentration_mol_m3",
         }
     }
 
@@ -217,6 +278,7 @@ impl Objective {
             Objective::PlantMembraneArea => plant.membrane_area_m2_per_m3_day,
             Objective::WaterRecovery => plant.water_recovery,
             Objective::StackVoltage => max_stack_voltage(p),
+            Objective::ProductConcentration => plant.product_concentration_mol_m3,
         }
     }
 
