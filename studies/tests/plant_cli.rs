@@ -338,10 +338,6 @@ fn stage_and_recovery_variables_are_checked() {
         &[
             ("mode = \"feed_and_bleed\"", "mode = \"once_through\""),
             ("water_recovery = 0.85", ""),
-            (
-                "[objectives]",
-                "[variables.water_recovery]\nlower = 0.6\nupper = 0.9\n\n[objectives]",
-            ),
         ],
     );
     assert_bad(
@@ -350,15 +346,8 @@ fn stage_and_recovery_variables_are_checked() {
         "variables.water_recovery",
         "feed-and-bleed",
     );
-    // A stage variable and the recovery variable: CSV columns of their own.
-    let p = plant_with(
-        dir.path(),
-        &[(
-            "[objectives]",
-            "[variables.stage2.pitch]\nlower_um = 50.0\nupper_um = 800.0\n\n\
-             [variables.water_recovery]\nlower = 0.6\nupper = 0.9\n\n[objectives]",
-        )],
-    );
+    // The demo's stage variable and recovery variable: CSV columns of their own.
+    let p = demo("plant.toml");
     let out = dir.path().join("run");
     let o = stria(&[
         "run",

@@ -376,7 +376,7 @@ pub const KEYS: &[KeySpec] = &[
     k("water.analysis", "mg_mg_L", Float, "mg/L", 1.0, Value("0.0"), closed(0.0, 2e5), None, "Magnesium."),
     k("water.analysis", "cl_mg_L", Float, "mg/L", 1.0, Required, closed(0.0, 2e5), None, "Chloride."),
     k("water.analysis", "so4_mg_L", Float, "mg/L", 1.0, Value("0.0"), closed(0.0, 2e5), None, "Sulfate as SO4."),
-    k("water.analysis", "alkalinity_mg_L_HCO3", Float, "mg/L as HCO3", 1.0, Required, Some(Range { lo: 0.0, hi: 2e5, lo_open: true, hi_open: false }), None, "Alkalinity as HCO3."),
+    k("water.analysis", "alkalinity_mg_L_as_HCO3", Float, "mg/L as HCO3", 1.0, Required, Some(Range { lo: 0.0, hi: 2e5, lo_open: true, hi_open: false }), None, "Alkalinity as HCO3."),
     k("water.analysis", "pH", Float, "-", 1.0, Required, closed(4.0, 10.0), None, "pH of the feed (the temperature is [water] temperature_C, at most 90 C)."),
     k("stack", "cell_pairs", Int, "-", 1.0, Required, closed(1.0, 5000.0), None, "Cell pairs per stack (first stage)."),
     k("stack", "electrode_voltage_V", Float, "V", 1.0, Value("2.5"), closed(0.0, 50.0), closed(1.5, 4.0), "Electrode compartments as one voltage (reaction potentials, overpotentials, rinse); about 2-3 V for gas-evolving electrodes, common practice. The rinse carries hydrogen, oxygen and chlorine: vent it."),
@@ -387,7 +387,7 @@ pub const KEYS: &[KeySpec] = &[
     k("stack", "membrane_thickness_mm", Float, "mm", 1e-3, Derived("0.15 with a manifold"), closed(0.001, 1000.0), None, "Membrane thickness (sets the cell-pair thickness, the manifold segment length)."),
     k("stack", "electrode_price_per_m2", Float, "currency/m2", 1.0, Value("0.0"), closed(0.0, 1e6), None, "Electrode price (two per stack, each of the cell area)."),
     k("stack", "spacer_price_per_m2", Float, "currency/m2", 1.0, Value("0.0"), closed(0.0, 1e6), None, "Spacer or gasket price (two per cell pair, each of the cell area)."),
-    k("stack", "hardware_price_per_stack", Float, "currency", 1.0, Value("0.0"), closed(0.0, 1e9), None, "End plates, frames, tie rods per stack."),
+    k("stack", "hardware_price_per_stack", Float, "currency/stack", 1.0, Value("0.0"), closed(0.0, 1e9), None, "End plates, frames, tie rods per stack."),
     k("stack", "rectifier_price_per_kW", Float, "currency/kW", 1.0, Value("0.0"), closed(0.0, 1e6), None, "Rectifier price per kW of DC output."),
     k("stack", "plant_life_years", Float, "years", 1.0, Value("20.0"), closed(0.01, 100.0), None, "Life over which everything but the membranes is annuitised."),
     k("stages.N", "length_m", Float, "m", 1.0, Derived("the first stage's"), closed(1e-5, 20.0), closed(0.02, 3.0), "Flow-path length of this stage."),
@@ -695,7 +695,7 @@ mod tests {
             ("currency/m2", "per_m2"),
             ("currency/kW", "per_kw"),
             ("currency", "price_per"),
-            ("mg/L as HCO3", "mg_l_hco3"),
+            ("currency/stack", "per_stack"),
         ];
         for s in KEYS
             .iter()

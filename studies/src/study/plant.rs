@@ -294,7 +294,7 @@ fn read_analysis(r: &mut Reader, temperature_c: f64) -> Result<WaterAnalysis, Cl
         mg_mg_l: r.float_req(s, "mg_mg_L")?,
         cl_mg_l: r.float_req(s, "cl_mg_L")?,
         so4_mg_l: r.float_req(s, "so4_mg_L")?,
-        alkalinity_mg_l_hco3: r.float_req(s, "alkalinity_mg_L_HCO3")?,
+        alkalinity_mg_l_hco3: r.float_req(s, "alkalinity_mg_L_as_HCO3")?,
         ph: r.float_req(s, "pH")?,
         temperature_c,
     };
