@@ -366,9 +366,7 @@ pub fn run(opts: &RunOptions) -> Result<Ended, CliError> {
             progress.update(&report, state.run.archive().len());
         }
     });
-    let written = state.out.finish();
-    let ended = ended?;
-    written?;
+    let ended = ended.and_then(|e| state.out.finish().map(|()| e))?; // (on Err: Drop flushes)
     progress.finish();
     let elapsed = state.elapsed_before_s + started.elapsed().as_secs_f64();
     let stop_reason = match ended {
