@@ -57,11 +57,9 @@ pub struct RomConstants {
     /// kappa_P: sharpness of the pinning efficiency
     /// P(f) = (f/phi*)^(kappa_P phi*) ((1-f)/(1-phi*))^(kappa_P (1-phi*)) (-).
     pub pinning_sharpness: f64,
-    /// Funnelling: pitch / delta at which the heterogeneous limit is half way between
-    /// homogeneous and open_fraction (-).
-    pub funnel_scale: f64,
-    /// Funnelling: steepness of the interpolation in pitch / delta (-).
-    pub funnel_exponent: f64,
+    /// delta_F / delta: thickness of the Nernst layer in the exact funnelling solution over
+    /// the diffusion-layer thickness of the Sherwood law (-); 1 takes the film as it is.
+    pub funnel_layer_ratio: f64,
     /// v_ws: diffusion-layer voltage at which water splitting starts at the CEM, thermal units (-).
     pub water_splitting_onset: f64,
     /// v_ws at the AEM (starts earlier there), thermal units (-).
@@ -88,8 +86,7 @@ impl Default for RomConstants {
             alpha_max: 0.36,
             best_open_fraction: 0.5,
             pinning_sharpness: 2.0,
-            funnel_scale: 4.5,
-            funnel_exponent: 1.0,
+            funnel_layer_ratio: 1.0,
             water_splitting_onset: 60.0,
             water_splitting_onset_aem: 35.0,
             water_splitting_scale: 20.0,
@@ -102,7 +99,7 @@ impl RomConstants {
     /// Check every constant against its admissible range (the range inside which the
     /// current-voltage law stays strictly increasing and finite).
     pub fn validate(&self) -> Result<(), ModelError> {
-        let checks: [(&'static str, f64, f64, f64, &'static str); 16] = [
+        let checks: [(&'static str, f64, f64, f64, &'static str); 15] = [
             (
                 "onset_voltage",
                 self.onset_voltage,
@@ -155,10 +152,9 @@ impl RomConstants {
                 50.0,
                 "0.1 to 50",
             ),
-            ("funnel_scale", self.funnel_scale, 1e-3, 1e3, "1e-3 to 1e3"),
             (
-                "funnel_exponent",
-                self.funnel_exponent,
+                "funnel_layer_ratio",
+                self.funnel_layer_ratio,
                 0.1,
                 10.0,
                 "0.1 to 10",
@@ -269,10 +265,8 @@ pub fn provenance_of(k: &RomConstants) -> Vec<ConstantRow> {
             source: "from memory: half-open stripe patterns are the usual choice in pattern studies; symmetric pinning assumed" },
         ConstantRow { symbol: "kappa_P", key: "pinning_sharpness", value: k.pinning_sharpness, unit: "-",
             source: "choice of this crate: with phi* = 0.5, kappa_P = 2 gives the parabola P = 4 f (1 - f)" },
-        ConstantRow { symbol: "s_F", key: "funnel_scale", value: k.funnel_scale, unit: "-",
-            source: "computed: matches the small-pitch slope of the strip-constriction (diffusion analogue of the spreading) resistance (pitch / (pi delta)) ln(1/sin(pi f/2)) at f = 0.5; limits per Rubinstein, Staude and Kedem, Desalination 69 (1988) 101 (from memory)" },
-        ConstantRow { symbol: "k_F", key: "funnel_exponent", value: k.funnel_exponent, unit: "-",
-            source: "computed: the constriction deficit is linear in pitch/delta for pitch << delta" },
+        ConstantRow { symbol: "delta_F/delta", key: "funnel_layer_ratio", value: k.funnel_layer_ratio, unit: "-",
+            source: "choice of this crate: the exact funnelling solution of a Nernst film (docs/physics.md#funnelling) is applied with the film thickness of the Sherwood law; a calibration handle for real, convective layers" },
         ConstantRow { symbol: "v_ws", key: "water_splitting_onset", value: k.water_splitting_onset, unit: "V_T",
             source: "from memory: CEMs split water only at layer voltages well into the overlimiting range; Nikonenko et al., Desalination 342 (2014) 85" },
         ConstantRow { symbol: "v_ws,AEM", key: "water_splitting_onset_aem", value: k.water_splitting_onset_aem, unit: "V_T",
@@ -308,10 +302,8 @@ pub const ROM_MEANINGS: &[(&str, &str, &str)] = &[
         "phi*: open fraction at which stripes pin the vortices best"),
     ("pinning_sharpness", "dimensionless",
         "kappa_P: how fast the pinning efficiency falls away from phi* (P = 4 f (1 - f) at phi* = 0.5, kappa_P = 2)"),
-    ("funnel_scale", "pitch / diffusion-layer thickness",
-        "s_F: pitch / delta at which funnelling has lowered the limiting current half way from the plain value to the open fraction"),
-    ("funnel_exponent", "dimensionless",
-        "k_F: steepness of the funnelling interpolation in pitch / delta"),
+    ("funnel_layer_ratio", "diffusion-layer thicknesses",
+        "delta_F / delta: the funnelling factor is the exact one of a Nernst film of thickness delta_F = ratio x delta"),
     ("water_splitting_onset", "thermal voltages (RT/F)",
         "v_ws: CEM diffusion-layer voltage at which water splitting starts"),
     ("water_splitting_onset_aem", "thermal voltages (RT/F)",
@@ -490,10 +482,8 @@ pub fn priors() -> Vec<Prior> {
             "from memory: pattern studies use open fractions from about 0.3 to 0.7 with similar success"),
         ("pinning_sharpness", LogUniform { lower: 1.0, upper: 4.0 },
             "choice of this crate, no source: a factor 2 either way of the default"),
-        ("funnel_scale", LogUniform { lower: 3.0, upper: 6.75 },
-            "computed: the small-pitch slope of the exact constriction matches s_F from about 3 (f = 0.2) to about 7 (f = 0.8); log-uniform with the default at its geometric centre"),
-        ("funnel_exponent", Normal { mean: 1.0, sd: 0.2, lower: 0.5, upper: 2.0 },
-            "computed: the constriction deficit is linear in pitch/delta for pitch << delta (n = 1); sd 0.2 for the shape of the transition"),
+        ("funnel_layer_ratio", LogUniform { lower: 0.7, upper: 1.0 / 0.7 },
+            "from memory: a Nernst film stands for a convective concentration layer to some tens of per cent in thickness (Levich's film idealisation); a factor 1/0.7 either way"),
         ("water_splitting_onset", Uniform { lower: 40.0, upper: 80.0 },
             "from memory: CEMs split water well into the overlimiting range (Nikonenko et al. 2014); +-20 V_T"),
         ("water_splitting_onset_aem", Uniform { lower: 20.0, upper: 50.0 },

@@ -266,8 +266,13 @@ pub fn evaluate(
     let c_f = w.feed_concentration_mol_m3;
     let ilim_cem = peers_limit(d_salt, c_f, m.cem_transport_number, tp, delta_mean);
     let ilim_aem = peers_limit(d_salt, c_f, m.aem_transport_number, 1.0 - tp, delta_mean);
-    let het_cem = cell.cem.layer(ilim_cem, delta_mean).i_het;
-    let het_aem = cell.aem.layer(ilim_aem, delta_mean).i_het;
+    let (layer_cem, layer_aem) = (
+        cell.cem.layer(ilim_cem, delta_mean),
+        cell.aem.layer(ilim_aem, delta_mean),
+    );
+    let (het_cem, het_aem) = (layer_cem.i_het, layer_aem.i_het);
+    // An unpatterned surface has Phi = 1, so the smaller is the patterned membrane's.
+    let funnelling_factor = layer_cem.phi.min(layer_aem.phi);
     let cem_limits = het_cem <= het_aem;
 
     // Performance.
@@ -373,6 +378,7 @@ pub fn evaluate(
             limiting_current_density_feed_A_m2: if cem_limits { ilim_cem } else { ilim_aem },
             limiting_membrane: if cem_limits { "CEM" } else { "AEM" }.into(),
             heterogeneous_limiting_current_density_feed_A_m2: het_cem.min(het_aem),
+            funnelling_factor,
         },
         performance: PerformanceOut {
             outlet_concentration_mol_m3: c_out,

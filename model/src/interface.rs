@@ -4,8 +4,9 @@
 //! In thermal units v (layer voltage / V_T), with i_lim the Peers limit of the homogeneous
 //! membrane at the local delta:
 //!
-//! - funnelling: i_lim,het = i_lim Phi, Phi = f + (1 - f) / (1 + (pitch / (s_F delta))^k_F)
-//!   (f = open fraction; Phi -> 1 for pitch << delta, -> f for pitch >> delta);
+//! - funnelling: i_lim,het = i_lim Phi, Phi the exact limiting-current factor of a periodic
+//!   strip array under a Nernst film (see [`Funnel`]; f = open fraction; Phi -> 1 for
+//!   pitch << delta, -> f for pitch >> delta);
 //! - classic branch: i_cl = i_lim,het (1 - exp(-v/2)) (ideal membrane, binary salt);
 //! - vortex wavelength: lambda_v = a_lambda delta (v / v_c)^q for v > v_c;
 //! - active-area fraction: alpha(v) = alpha_0' + (alpha_max' - alpha_0') L P(f), with the
@@ -55,19 +56,205 @@ impl MembraneKind {
     }
 }
 
-/// Funnelling factor Phi = i_lim,het / i_lim of a striped surface.
-///
-/// Phi = f + (1 - f) / (1 + (pitch / (s_F delta))^k_F). Limits (Rubinstein, Staude and Kedem,
-/// Desalination 69 (1988) 101; from memory): Phi -> 1 for pitch << delta, Phi -> f for
-/// pitch >> delta. With k_F = 1 and s_F = 4.5 the small-pitch deficit 1 - Phi matches the
-/// strip-constriction estimate (pitch / (pi delta)) ln(1 / sin(pi f / 2)) at f = 0.5.
+/// Funnelling factor Phi = i_lim,het / i_lim of a striped surface: the exact factor of a
+/// Nernst film of thickness `funnel_layer_ratio` x `delta_m` (see [`Funnel`]).
 #[inline]
 pub fn funnelling(pitch_m: f64, delta_m: f64, open_fraction: f64, k: &RomConstants) -> f64 {
     if open_fraction >= 1.0 {
         return 1.0;
     }
-    let x = (pitch_m / (k.funnel_scale * delta_m)).powf(k.funnel_exponent);
-    open_fraction + (1.0 - open_fraction) / (1.0 + x)
+    Funnel::new(open_fraction).phi(pitch_m / (k.funnel_layer_ratio * delta_m))
+}
+
+/// The exact funnelling factor of a periodic array of conducting strips (share f of the
+/// pitch) under a Nernst film of thickness delta, as a function of r = pitch / delta.
+///
+/// Problem (docs/physics.md#funnelling): Laplace's equation for the concentration in the cell
+/// 0 < x < p, 0 < y < delta; c = c_b at y = delta, c = 0 on the conducting share f p of the
+/// wall, no flux on the inert share; Phi = mean wall flux / (D c_b / delta). A
+/// Schwarz-Christoffel map (Jacobi's sn with K'(k)/K(k) = 2 delta / p) takes the symmetric half
+/// cell onto a half plane and a second one onto a rectangle, giving in closed form
+///
+/// Phi = (2 / r) K(kappa) / K'(kappa), kappa = k sn(f K(k), k), kappa' = dn(f K(k), k),
+///
+/// with K the complete elliptic integral of the first kind. Evaluated through theta series in
+/// the nome q = exp(-2 pi / r) for r <= 2 and, by Jacobi's imaginary transformation, in
+/// q' = exp(-pi r / 2) for r > 2 (Abramowitz and Stegun 16.36; DLMF 20.7.30), each at most
+/// exp(-pi) so that five terms reach round-off; K/K' from the nome series (A and S 17.3.21).
+/// Outside 0.05 <= r <= 150 / min(f, 1 - f) the two exact asymptotes are used, to relative
+/// 1e-50 or better: Phi = 1 / (1 + (r / pi) ln(1 / sin(pi f / 2))) (the constriction of a strip
+/// array, Rubinstein, Staude and Kedem, Desalination 69 (1988) 101) and
+/// Phi = f + (4 ln 2 / pi) / r (two independent edges). Held to a finite-volume solution with
+/// Richardson extrapolation and to an independent evaluation of the same closed form
+/// (acceptance tests `funnelling_*` in tests/tests/acceptance/model_refs.rs).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Funnel {
+    f: f64,
+    /// ln(1 / sin(pi f / 2)), the deep-layer constriction of the strip array.
+    constriction: f64,
+    /// sin((2n + 1) pi f / 2), n = 0..4.
+    sin_odd: [f64; 5],
+    /// cos(2 n pi f / 2), n = 1..4 (index n - 1).
+    cos_even: [f64; 4],
+}
+
+/// 4 ln 2 / pi: the extra limiting current of the two edges of a wide strip, in units of
+/// delta / pitch (the large-pitch limit Phi = f + (4 ln 2 / pi) delta / pitch).
+pub const EDGE_CONSTANT: f64 = 4.0 * std::f64::consts::LN_2 / std::f64::consts::PI;
+
+impl Funnel {
+    /// The funnelling law of open fraction `f` (0 < f <= 1).
+    pub fn new(f: f64) -> Self {
+        let f = f.clamp(f64::MIN_POSITIVE, 1.0);
+        let z = 0.5 * std::f64::consts::PI * f;
+        let mut sin_odd = [0.0; 5];
+        let mut cos_even = [0.0; 4];
+        for (n, s) in sin_odd.iter_mut().enumerate() {
+            *s = ((2 * n + 1) as f64 * z).sin();
+        }
+        for (n, c) in cos_even.iter_mut().enumerate() {
+            *c = (2.0 * (n + 1) as f64 * z).cos();
+        }
+        Funnel {
+            f,
+            constriction: -z.sin().ln(),
+            sin_odd,
+            cos_even,
+        }
+    }
+
+    /// Phi at r = pitch / delta (> 0).
+    pub fn phi(&self, r: f64) -> f64 {
+        use std::f64::consts::PI;
+        let f = self.f;
+        if f >= 1.0 {
+            return 1.0;
+        }
+        if r < 0.05 {
+            // Deep layer: the series constriction, exact to a relative 1e-50 here.
+            return 1.0 / (1.0 + r * self.constriction / PI);
+        }
+        if r * f.min(1.0 - f) > 150.0 {
+            // Wide strips and gaps: independent edges, exact to a relative 1e-100 here.
+            return f + EDGE_CONSTANT / r;
+        }
+        let ratio = if r <= 2.0 {
+            // Nome q = exp(-2 pi / r) <= exp(-pi): theta series in q.
+            let h = (-0.5 * PI / r).exp(); // q^(1/4)
+            let q = (h * h) * (h * h);
+            let q2 = q * q;
+            let qn2 = [q, q2 * q2, q2 * q2 * q2 * q2 * q, q2.powi(8)]; // q^(n^2), n = 1..4
+            let qnn = [1.0, q2, q2 * q2 * q2, q2.powi(6), q2.powi(10)]; // q^(n^2 + n), n = 0..4
+            let (mut t3, mut t4, mut t3z, mut t4z) = (1.0, 1.0, 1.0, 1.0);
+            let mut sign = -1.0;
+            for n in 0..4 {
+                t3 += 2.0 * qn2[n];
+                t4 += 2.0 * sign * qn2[n];
+                t3z += 2.0 * qn2[n] * self.cos_even[n];
+                t4z += 2.0 * sign * qn2[n] * self.cos_even[n];
+                sign = -sign;
+            }
+            let (mut p2, mut s1) = (0.0, 0.0);
+            let mut sign = 1.0;
+            for n in 0..5 {
+                p2 += qnn[n];
+                s1 += sign * qnn[n] * self.sin_odd[n];
+                sign = -sign;
+            }
+            // kappa = k sn(fK) = (theta2/theta3)(0) theta1(z)/theta4(z); kappa' = dn(fK).
+            let kappa = 4.0 * h * h * p2 * s1 / (t3 * t4z);
+            let kappa_c = t4 * t3z / (t3 * t4z);
+            if kappa <= kappa_c {
+                k_ratio_small(kappa, kappa_c)
+            } else {
+                k_ratio_large(kappa, kappa_c.ln())
+            }
+        } else {
+            // Complementary nome A = exp(-pi r / 2) <= exp(-pi), Jacobi's imaginary
+            // transformation; every series term scaled to at most 1.
+            let w1 = 0.25 * PI * f * r;
+            let w2 = 0.25 * PI * (1.0 - f) * r;
+            let (h1, h2) = ((-w1).exp(), (-w2).exp());
+            let a = (h1 * h2) * (h1 * h2);
+            let ab = h2 * h2;
+            let d = h1 * h1;
+            let one_minus_d = if w1 > 0.5 {
+                1.0 - d
+            } else {
+                -(-2.0 * w1).exp_m1()
+            };
+            let a2 = a * a;
+            let (a4, a9) = (a2 * a2, a2 * a2 * a2 * a2 * a);
+            let t3a = 1.0 + 2.0 * (a + a4 + a9);
+            let t4a = 1.0 - 2.0 * a + 2.0 * a4 - 2.0 * a9;
+            let pa = 1.0 + a2 + a2 * a2 * a2 + a2.powi(6);
+            // C' and S' (n = 0..3): A^(n^2) (AB)^n (1 +- D^(2n+1)) / 2.
+            let g = [1.0, a * ab, a4 * ab * ab, a9 * ab * ab * ab];
+            let d2 = d * d;
+            let mut dpow = d; // D^(2n+1)
+            let mut geo = 1.0; // 1 + D + ... + D^(2n)
+            let (mut c, mut s) = (0.0, 0.0);
+            let mut sign = 1.0;
+            for gn in g {
+                c += gn * (1.0 + dpow);
+                s += sign * gn * one_minus_d * geo;
+                geo += dpow * (1.0 + d);
+                dpow *= d2;
+                sign = -sign;
+            }
+            c *= 0.5;
+            s *= 0.5;
+            let kappa = t4a / t3a * s / c;
+            // kappa' = (P / theta3) h1 (1 + sum_n h1^(2n^2-2n) h2^(2n^2) (1 + h1^(4n))) / C'.
+            let h2s = h2 * h2;
+            let (h2s2, d4) = (h2s * h2s, d2 * d2);
+            let b = h2s * (1.0 + d2)
+                + d2 * h2s2 * h2s2 * (1.0 + d4)
+                + d4 * d2 * h2s2.powi(4) * h2s * (1.0 + d4 * d2);
+            let ln_kc = -w1 + ((1.0 + b) * pa / (t3a * c)).ln();
+            if ln_kc > -std::f64::consts::LN_2 * 0.5 {
+                // kappa <= 1/sqrt(2) <= kappa'.
+                k_ratio_small(kappa, ln_kc.exp())
+            } else {
+                k_ratio_large(kappa, ln_kc)
+            }
+        };
+        2.0 / r * ratio
+    }
+}
+
+/// ln(q) / e - 1 for the nome series q = e + 2 e^5 + 15 e^9 + 150 e^13 + 1707 e^17
+/// (Abramowitz and Stegun 17.3.21), as ln(1 + x) to third order in x = 2 e^4 + ... <= 7e-6.
+#[inline]
+fn nome_series_log(e: f64) -> f64 {
+    let e4 = (e * e) * (e * e);
+    let x = e4 * (2.0 + e4 * (15.0 + e4 * (150.0 + e4 * 1707.0)));
+    x * (1.0 - x * (0.5 - x / 3.0))
+}
+
+/// K(kappa) / K'(kappa) for kappa <= 1/sqrt(2), from kappa and kappa' = sqrt(1 - kappa^2):
+/// K'/K = -ln(q) / pi with the nome q from its series in
+/// e = (1 - sqrt(kappa')) / (2 (1 + sqrt(kappa'))) <= 0.0433.
+#[inline]
+fn k_ratio_small(kappa: f64, kappa_c: f64) -> f64 {
+    // 1 - sqrt(kappa') = kappa^2 / ((1 + kappa') (1 + sqrt(kappa'))), no cancellation.
+    let sc = kappa_c.sqrt();
+    let e = kappa * kappa / ((1.0 + kappa_c) * 2.0 * (1.0 + sc) * (1.0 + sc));
+    std::f64::consts::PI / -(e.ln() + nome_series_log(e))
+}
+
+/// K(kappa) / K'(kappa) for kappa >= 1/sqrt(2), from kappa and ln kappa' (finite where
+/// kappa' underflows): the same series for the complementary modulus.
+#[inline]
+fn k_ratio_large(kappa: f64, ln_kappa_c: f64) -> f64 {
+    let sk = kappa.sqrt();
+    let ln_e = 2.0 * ln_kappa_c - ((1.0 + kappa) * 2.0 * (1.0 + sk) * (1.0 + sk)).ln();
+    let corr = if ln_e > -12.0 {
+        nome_series_log(ln_e.exp())
+    } else {
+        0.0
+    };
+    -(ln_e + corr) / std::f64::consts::PI
 }
 
 /// Pinning efficiency P(f) in [0, 1]: zero for a homogeneous surface (f = 1) and for f -> 0,
@@ -194,6 +381,8 @@ pub struct Surface {
     a0: f64,
     /// (alpha_max' - alpha_0') P(f).
     amp: f64,
+    /// The funnelling law of this open fraction.
+    funnel: Funnel,
     /// 1 - exp(-v_c / 2).
     onset_factor: f64,
     k: RomConstants,
@@ -210,6 +399,7 @@ impl Surface {
             open_fraction: f,
             a0,
             amp: (amax - a0) * pinning_efficiency(f, k),
+            funnel: Funnel::new(f),
             onset_factor: 1.0 - (-0.5 * k.onset_voltage).exp(),
             k: *k,
         }
@@ -225,13 +415,8 @@ impl Surface {
         let phi = if f >= 1.0 {
             1.0
         } else {
-            let r = self.pitch_m / (k.funnel_scale * delta_m);
-            let x = if k.funnel_exponent == 1.0 {
-                r
-            } else {
-                r.powf(k.funnel_exponent)
-            };
-            f + (1.0 - f) / (1.0 + x)
+            self.funnel
+                .phi(self.pitch_m / (k.funnel_layer_ratio * delta_m))
         };
         let lambda0 = k.wavelength_prefactor * delta_m;
         let (q, sigma, v_c) = (k.wavelength_exponent, k.lockin_width, k.onset_voltage);
@@ -598,18 +783,36 @@ mod tests {
     }
 
     #[test]
-    fn funnelling_small_pitch_slope_matches_strip_constriction() {
-        // The default funnel_scale is chosen so that, for pitch << delta, 1 - Phi equals the
-        // strip-constriction estimate (pitch / (pi delta)) ln(1 / sin(pi f / 2)) at f = 0.5.
-        let k = RomConstants::default();
-        let (pitch, delta, f) = (1e-7, 1e-4, 0.5);
-        let deficit = 1.0 - funnelling(pitch, delta, f, &k);
-        let constriction = pitch / (std::f64::consts::PI * delta)
-            * (1.0 / (0.5 * std::f64::consts::PI * f).sin()).ln();
-        assert!(
-            (deficit / constriction - 1.0).abs() < 0.02,
-            "{deficit} vs {constriction}"
-        );
+    fn funnelling_meets_both_exact_asymptotes_and_is_continuous_at_its_branches() {
+        use std::f64::consts::PI;
+        for f in [0.02, 0.1, 0.3, 0.5, 0.7, 0.9, 0.98] {
+            let law = Funnel::new(f);
+            let l = (1.0 / (0.5 * PI * f).sin()).ln();
+            // Deep film (strip constriction in series; exact up to exp(-2 pi / r) terms).
+            for r in [0.06, 0.2, 0.5] {
+                let want = 1.0 / (1.0 + r * l / PI);
+                assert!((law.phi(r) / want - 1.0).abs() < 1e-6, "f={f} r={r}");
+            }
+            // Wide strips and gaps: f + (4 ln 2 / pi) / r.
+            let r = 60.0 / f.min(1.0 - f);
+            assert!(
+                (law.phi(r) / (f + EDGE_CONSTANT / r) - 1.0).abs() < 1e-9,
+                "f={f} r={r}"
+            );
+            // Branch points: continuous to round-off, and Phi falls with r throughout.
+            let hi = 150.0 / f.min(1.0 - f);
+            for r0 in [0.05, 2.0, hi] {
+                let (a, b) = (law.phi(r0 * (1.0 - 1e-12)), law.phi(r0 * (1.0 + 1e-12)));
+                assert!((a - b).abs() < 1e-9 * a, "f={f} r={r0}: {a} {b}");
+            }
+            let mut last = 1.0;
+            for j in 0..=400 {
+                let r = 1e-3 * 10f64.powf(j as f64 * 7.0 / 400.0);
+                let p = law.phi(r);
+                assert!(p < last && p > f, "f={f} r={r}: {p} after {last}");
+                last = p;
+            }
+        }
     }
 
     #[test]

@@ -82,6 +82,9 @@ pub struct TransferOut {
     /// Limit of the limiting membrane with the pattern's funnelling (i_lim Phi) at the feed
     /// concentration and mean thickness, A/m^2.
     pub heterogeneous_limiting_current_density_feed_A_m2: f64,
+    /// Funnelling factor Phi of the patterned membrane at the channel-mean diffusion-layer
+    /// thickness (1 for an unpatterned cell pair), -.
+    pub funnelling_factor: f64,
 }
 
 /// Performance.

@@ -28,10 +28,10 @@ fn constants_strategy() -> impl Strategy<Value = RomConstants> {
             0.1..0.9f64,
             0.5..6.0f64,
         ),
-        (0.5..10.0f64, 0.5..3.0f64),
+        0.3..3.0f64,
     )
         .prop_map(
-            |((vc, g, n, a, q), (s, a0, amax, phi, kp), (fs, fe))| RomConstants {
+            |((vc, g, n, a, q), (s, a0, amax, phi, kp), fs)| RomConstants {
                 onset_voltage: vc,
                 overlimiting_conductance: g,
                 overlimiting_exponent: n,
@@ -42,8 +42,7 @@ fn constants_strategy() -> impl Strategy<Value = RomConstants> {
                 alpha_max: amax,
                 best_open_fraction: phi,
                 pinning_sharpness: kp,
-                funnel_scale: fs,
-                funnel_exponent: fe,
+                funnel_layer_ratio: fs,
                 ..RomConstants::default()
             },
         )
@@ -283,8 +282,7 @@ fn point_solve_balances_just_past_a_secondary_onset() {
                 alpha_max: 0.15153853397700906,
                 best_open_fraction: 0.8230391009314617,
                 pinning_sharpness: 5.573380534528488,
-                funnel_scale: 4.056780318110456,
-                funnel_exponent: 2.0796854464985732,
+                funnel_layer_ratio: 0.9015067373578791,
                 ..RomConstants::default()
             },
             (
@@ -306,8 +304,7 @@ fn point_solve_balances_just_past_a_secondary_onset() {
                 alpha_max: 0.8256199533892454,
                 best_open_fraction: 0.29763194731489784,
                 pinning_sharpness: 3.9781919575639697,
-                funnel_scale: 3.4583982961453317,
-                funnel_exponent: 2.899328915791061,
+                funnel_layer_ratio: 0.768532954698962,
                 ..RomConstants::default()
             },
             (189.25115247491985, 23.96160071173132, 8.383051174450317e-5),

@@ -563,7 +563,7 @@ fn choose(d: &mut Design, which: usize, variant: usize) {
 /// The ROM constants with the ranges `RomConstants::validate` states (all closed).
 type RomField = (&'static str, f64, f64, fn(&mut RomConstants) -> &mut f64);
 
-fn rom_fields() -> [RomField; 16] {
+fn rom_fields() -> [RomField; 15] {
     [
         ("onset_voltage", 0.5, 200.0, |k| &mut k.onset_voltage),
         ("overlimiting_conductance", 1e-3, 10.0, |k| {
@@ -585,8 +585,9 @@ fn rom_fields() -> [RomField; 16] {
             &mut k.best_open_fraction
         }),
         ("pinning_sharpness", 0.1, 50.0, |k| &mut k.pinning_sharpness),
-        ("funnel_scale", 1e-3, 1e3, |k| &mut k.funnel_scale),
-        ("funnel_exponent", 0.1, 10.0, |k| &mut k.funnel_exponent),
+        ("funnel_layer_ratio", 0.1, 10.0, |k| {
+            &mut k.funnel_layer_ratio
+        }),
         ("water_splitting_onset", 0.0, 1e4, |k| {
             &mut k.water_splitting_onset
         }),
@@ -675,7 +676,7 @@ fn case(inside: bool) -> impl Strategy<Value = Case> {
         prop::collection::vec(change(), 1..=if inside { 8 } else { 4 }),
         prop_oneof![
             3 => Just(Vec::new()),
-            1 => prop::collection::vec((0..16usize, 0..64usize), 1..=4),
+            1 => prop::collection::vec((0..15usize, 0..64usize), 1..=4),
         ],
         prop_oneof![6 => Just(None), 1 => (0..64usize).prop_map(Some)],
         any::<bool>(),

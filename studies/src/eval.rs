@@ -352,6 +352,12 @@ pub fn design_sheet(input: &SheetInput) -> String {
         "A/m2",
     );
     row(&mut s, "limiting membrane", t.limiting_membrane.clone(), "");
+    row(
+        &mut s,
+        "funnelling factor (channel mean)",
+        sig(t.funnelling_factor, 4),
+        "-",
+    );
 
     let f = &e.performance;
     s.push_str("\nPerformance\n");

@@ -338,6 +338,7 @@ const SCHEMA: &[(&str, &[&str])] = &[
             "boundary_layer_thickness_mean_m",
             "limiting_current_density_feed_A_m2",
             "limiting_membrane",
+            "funnelling_factor",
         ],
     ),
     (

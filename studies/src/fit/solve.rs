@@ -40,7 +40,7 @@ pub const FITTABLE: [&str; 10] = [
     "alpha_0",
     "alpha_max",
     "best_open_fraction",
-    "funnel_scale",
+    "funnel_layer_ratio",
 ];
 
 /// The default set of fitted constants.
@@ -392,7 +392,7 @@ where
                 "it needs at least two points beyond the limiting current on a patterned \
                  membrane (open_fraction < 1), and the data have {n_over_pattern}"
             )
-        } else if b.key == "funnel_scale" && !patterned.iter().any(|x| *x) {
+        } else if b.key == "funnel_layer_ratio" && !patterned.iter().any(|x| *x) {
             "no curve on a patterned membrane".to_string()
         } else {
             continue;

@@ -1,6 +1,7 @@
 //! stria's acceptance tests: one test binary, one module per area. Every check names the
 //! outside reference it is held to (docs/references.md lists them).
 
+mod exact_refs;
 mod handoff_fit;
 mod model_refs;
 mod optimizer_refs;
