@@ -147,18 +147,18 @@ impl Funnel {
             let qnn = [1.0, q2, q2 * q2 * q2, q2.powi(6), q2.powi(10)]; // q^(n^2 + n), n = 0..4
             let (mut t3, mut t4, mut t3z, mut t4z) = (1.0, 1.0, 1.0, 1.0);
             let mut sign = -1.0;
-            for n in 0..4 {
-                t3 += 2.0 * qn2[n];
-                t4 += 2.0 * sign * qn2[n];
-                t3z += 2.0 * qn2[n] * self.cos_even[n];
-                t4z += 2.0 * sign * qn2[n] * self.cos_even[n];
+            for (qn, cos) in qn2.iter().zip(self.cos_even) {
+                t3 += 2.0 * qn;
+                t4 += 2.0 * sign * qn;
+                t3z += 2.0 * qn * cos;
+                t4z += 2.0 * sign * qn * cos;
                 sign = -sign;
             }
             let (mut p2, mut s1) = (0.0, 0.0);
             let mut sign = 1.0;
-            for n in 0..5 {
-                p2 += qnn[n];
-                s1 += sign * qnn[n] * self.sin_odd[n];
+            for (qn, sin) in qnn.iter().zip(self.sin_odd) {
+                p2 += qn;
+                s1 += sign * qn * sin;
                 sign = -sign;
             }
             // kappa = k sn(fK) = (theta2/theta3)(0) theta1(z)/theta4(z); kappa' = dn(fK).

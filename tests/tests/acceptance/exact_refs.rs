@@ -166,7 +166,7 @@ fn fv_extrapolated(f: f64, r: f64, n: usize) -> (f64, f64, f64) {
 fn funnelling_matches_finite_volumes() {
     // Cells chosen so that the electrode edge falls on a cell face at every grid.
     // Source: exact solution of the 2-D Nernst-film problem, computed here; the first four
-    // are also the checked values of docs/references.md#exact-references.
+    // are also the checked values of docs/references.md#interface-law.
     let cases = [
         (0.5, 0.1, Some(0.9891), 400),
         (0.5, 1.0, Some(0.9006), 20),
