@@ -6,10 +6,11 @@
 //!   bulk concentration ratio (ideal solutions; the polarisation of the layers is carried by
 //!   the layer voltages, so E_mem uses bulk, not wall, concentrations).
 //! - R_ohm = R_CEM/f_CEM + R_AEM/f_AEM (a patterned membrane conducts through its open share
-//!   only; f = 1 when unpatterned) + the strip-constriction (spreading) resistance
-//!   pitch ln(1 / sin(pi f / 2)) / (pi kappa_d) of each patterned surface (periodic strips on
-//!   an insulating plane, the classic constriction result, e.g. Newman, J. Electrochem. Soc.
-//!   113 (1966) 501 for the method; from memory) + the diluate and concentrate cores
+//!   only; f = 1 when unpatterned) + the solution-side constriction of each striped face,
+//!   counted once (see [`constriction_length`]: exact for a layer of thickness H between the
+//!   striped face and an equipotential plane, saturating at H (1/f - 1) where the pitch
+//!   exceeds H; on the diluate side less the part inside the funnelling film, which the
+//!   funnelling factor and the layer law already hold) + the diluate and concentrate cores
 //!   shadow (h - 2 delta) / kappa. The two diffusion layers of each channel are left out of
 //!   the ohmic term because the layer voltages 2 V_T ln(c_b/c_s) already hold their ohmic
 //!   drop (no double counting).
@@ -31,14 +32,21 @@ use crate::numerics::newton_bracketed;
 use crate::properties::{properties, ConductivityModel, Properties};
 use crate::transfer::SherwoodModel;
 
-/// Strip-constriction coefficient pitch ln(1 / sin(pi f / 2)) / pi, m; divided by the
-/// conductivity it is the area resistance added by funnelling the current into stripes of
-/// open fraction f (0 for f = 1).
-pub fn spreading_length(pitch_m: f64, open_fraction: f64) -> f64 {
-    if open_fraction >= 1.0 {
+/// Constriction length H (1 / Phi(f, p / H) - 1), m, of a conducting layer of thickness
+/// `thickness_m` between a face striped with open fraction f (pitch p; conducting stripes
+/// equipotential, the rest insulating) and an equipotential plane: divided by the layer's
+/// conductivity it is the area resistance the stripes add to the layer. Phi is the same
+/// exact two-dimensional solution as the funnelling factor ([`crate::interface::Funnel`]; the
+/// concentration and the potential obey the same Laplace problem). Limits:
+/// (p / pi) ln(1 / sin(pi f / 2)) for p << H (the classic constriction of periodic strips on
+/// an insulating plane) and H (1/f - 1) for p >> H (current confined to the stripes across
+/// the whole layer): it saturates instead of growing with p. 0 for f = 1.
+pub fn constriction_length(pitch_m: f64, open_fraction: f64, thickness_m: f64) -> f64 {
+    if open_fraction >= 1.0 || thickness_m <= 0.0 {
         return 0.0;
     }
-    pitch_m * (1.0 / (0.5 * std::f64::consts::PI * open_fraction).sin()).ln() / std::f64::consts::PI
+    let phi = crate::interface::Funnel::new(open_fraction).phi(pitch_m / thickness_m);
+    thickness_m * (1.0 / phi - 1.0)
 }
 
 /// Ratio of the slopes di/dv of the two layers beyond which the flatter layer's voltage is
@@ -62,8 +70,12 @@ pub struct Cell {
     pub r_cem: f64,
     /// AEM area resistance including 1/f, Ohm m^2.
     pub r_aem: f64,
-    /// Sum of the spreading lengths of the patterned surfaces, m.
-    pub spreading_m: f64,
+    /// Constriction lengths of the striped faces on the diluate side over the channel
+    /// (each face to the opposite wall, or to the mid-plane when both walls are striped), m.
+    pub constriction_d_m: f64,
+    /// The same on the concentrate side (stripes go through the membrane: its concentrate
+    /// face is striped too), m.
+    pub constriction_c_m: f64,
     /// Diluate gap, m.
     pub gap_d: f64,
     /// Concentrate gap, m.
@@ -180,6 +192,12 @@ impl Cell {
         };
         let d = props.salt_diffusivity_m2_s;
         let tp = props.cation_transport_number;
+        // A striped face's current spreads out to the opposite wall, or to the mid-plane when
+        // both walls are striped.
+        let span = |gap: f64| match m.pattern_side {
+            PatternSide::Both => 0.5 * gap,
+            _ => gap,
+        };
         Cell {
             vt: props.thermal_voltage_v,
             props,
@@ -188,7 +206,10 @@ impl Cell {
             tm_aem: m.aem_transport_number,
             r_cem: m.cem_area_resistance_ohm_m2 / f_cem,
             r_aem: m.aem_area_resistance_ohm_m2 / f_aem,
-            spreading_m: spreading_length(m.pitch_m, f_cem) + spreading_length(m.pitch_m, f_aem),
+            constriction_d_m: constriction_length(m.pitch_m, f_cem, span(ch.gap_m))
+                + constriction_length(m.pitch_m, f_aem, span(ch.gap_m)),
+            constriction_c_m: constriction_length(m.pitch_m, f_cem, span(ch.concentrate_gap_m))
+                + constriction_length(m.pitch_m, f_aem, span(ch.concentrate_gap_m)),
             gap_d: ch.gap_m,
             gap_c: ch.concentrate_gap_m,
             flow_d,
@@ -213,12 +234,21 @@ impl Cell {
         let kappa_c = self.cond.conductivity(c_c);
         let core_d = (self.gap_d - 2.0 * delta_d).max(0.0) * self.flow_d.shadow_factor;
         let core_c = (self.gap_c - 2.0 * delta_c).max(0.0) * self.flow_c.shadow_factor;
-        let r_ohm =
-            self.r_cem + self.r_aem + (self.spreading_m + core_d) / kappa_d + core_c / kappa_c;
+        let cem = self.cem.layer(self.peers_cem * c_d / delta_d, delta_d);
+        let aem = self.aem.layer(self.peers_aem * c_d / delta_d, delta_d);
+        // The diluate constriction inside the funnelling film (thickness ratio x delta) is in
+        // Phi and the layer law already: count the rest once.
+        let film = self.k.funnel_layer_ratio * delta_d;
+        let inside = film * (1.0 / cem.phi - 1.0) + film * (1.0 / aem.phi - 1.0);
+        let constriction_d = (self.constriction_d_m - inside).max(0.0);
+        let r_ohm = self.r_cem
+            + self.r_aem
+            + (constriction_d + core_d) / kappa_d
+            + (self.constriction_c_m + core_c) / kappa_c;
         let e_mem = 2.0 * self.xi0 * self.vt * (c_c / c_d).ln();
         Point {
-            cem: self.cem.layer(self.peers_cem * c_d / delta_d, delta_d),
-            aem: self.aem.layer(self.peers_aem * c_d / delta_d, delta_d),
+            cem,
+            aem,
             e_mem,
             r_ohm,
             inv_cc: delta_c / (self.peers_cem * c_c),

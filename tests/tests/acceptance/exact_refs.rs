@@ -389,3 +389,33 @@ fn sherwood_law_within_two_percent_of_graetz() {
     assert!(worst_local < 0.02, "local {worst_local}");
     assert!(worst_mean < 0.02, "mean {worst_mean}");
 }
+
+#[test]
+fn solution_constriction_matches_a_conduction_solution_and_saturates() {
+    use model::cell::constriction_length;
+    // The constriction resistance of a solution layer of thickness H over a striped face:
+    // finite volumes of the 2-D conduction problem (potential fixed on the stripes and at H,
+    // no current through the inert share; the same discrete solver as the funnelling
+    // reference), R kappa = H (1 / Phi_fv - 1).
+    let h = 5e-4;
+    for (f, r, n) in [(0.5, 1.0, 20), (0.2, 3.0, 10), (0.5, 4.0, 10)] {
+        let (fv, err, _) = fv_extrapolated(f, r, n);
+        let want = h * (1.0 / fv - 1.0);
+        let have = constriction_length(r * h, f, h);
+        let tol = h * 3.0 * err / (fv * fv) + 1e-12;
+        assert!(
+            (have - want).abs() <= tol,
+            "f={f} p/H={r}: {have} vs {want} +- {tol}"
+        );
+    }
+    // Limits: the classic strip constriction (p / pi) ln(1 / sin(pi f / 2)) for p << H, and
+    // saturation at H (1/f - 1) for p >> H (it no longer grows with the pitch).
+    for f in [0.2, 0.5, 0.8] {
+        let p = 1e-3 * h;
+        let classic = p / PI * (1.0 / (0.5 * PI * f).sin()).ln();
+        assert!((constriction_length(p, f, h) / classic - 1.0).abs() < 1e-6);
+        let wide = constriction_length(1e4 * h, f, h);
+        assert!((wide / (h * (1.0 / f - 1.0)) - 1.0).abs() < 1e-3, "f={f}");
+        assert!(constriction_length(1e5 * h, f, h) < h * (1.0 / f - 1.0));
+    }
+}
