@@ -179,111 +179,11 @@ impl RawStudy {
                 .or_else(|| item.span())
                 .map(|s| line_of(text, s.start));
             if name == "variables" {
-                let table = item.as_table_like().ok_or_else(|| {
-                    CliError::input(
-                        file,
-                        line,
-                        "variables",
-                        "must be a table of variables",
-                        "[variables.<name>] sections",
-                    )
-                })?;
-                for (var, sub) in table.iter() {
-                    let vline = table
-                        .get_key_value(var)
-                        .and_then(|(k, _)| k.span())
-                        .map(|s| line_of(text, s.start))
-                        .or(line);
-                    if let Some(n) = var
-                        .strip_prefix("stage")
-                        .filter(|n| keys::stage_number(n).is_some())
-                    {
-                        // [variables.stage2.pitch]: a variable of a later stage.
-                        let stage = sub.as_table_like().ok_or_else(|| {
-                            CliError::input(
-                                file,
-                                vline,
-                                format!("variables.{var}"),
-                                "must be a table of variables",
-                                format!("[variables.stage{n}.<name>] sections"),
-                            )
-                        })?;
-                        for (name, item) in stage.iter() {
-                            let nline = stage
-                                .get_key_value(name)
-                                .and_then(|(k, _)| k.span())
-                                .map(|s| line_of(text, s.start))
-                                .or(vline);
-                            let section = format!("variables.stage{n}.{}", shown_name(name));
-                            if !is_section(&section) {
-                                let names: Vec<&str> = variable_names()
-                                    .into_iter()
-                                    .filter(|v| *v != "water_recovery")
-                                    .collect();
-                                return Err(CliError::input(
-                                    file,
-                                    nline,
-                                    section,
-                                    format!(
-                                        "unknown design variable `{}` of stage {n}",
-                                        shown_name(name)
-                                    ),
-                                    names.join(", "),
-                                ));
-                            }
-                            raw.read_section(text, &section, item, nline)?;
-                        }
-                        continue;
-                    }
-                    let section = format!("variables.{}", shown_name(var));
-                    if !is_section(&section) {
-                        let names = variable_names();
-                        let msg = match closest(var, names.iter().copied()) {
-                            Some(b) => {
-                                format!(
-                                    "unknown design variable `{}`; did you mean `{b}`?",
-                                    shown_name(var)
-                                )
-                            }
-                            None => format!("unknown design variable `{}`", shown_name(var)),
-                        };
-                        return Err(CliError::input(file, vline, section, msg, names.join(", ")));
-                    }
-                    raw.read_section(text, &section, sub, vline)?;
-                }
+                raw.read_variables(text, item, line)?;
                 continue;
             }
             if name == "stages" {
-                let table = item.as_table_like().ok_or_else(|| {
-                    CliError::input(
-                        file,
-                        line,
-                        "stages",
-                        "must be a table of stages",
-                        "[stages.2], [stages.3], ... sections",
-                    )
-                })?;
-                for (n, sub) in table.iter() {
-                    let sline = table
-                        .get_key_value(n)
-                        .and_then(|(k, _)| k.span())
-                        .map(|s| line_of(text, s.start))
-                        .or(line);
-                    let section = format!("stages.{}", shown_name(n));
-                    if keys::stage_number(n).is_none() {
-                        return Err(CliError::input(
-                            file,
-                            sline,
-                            section,
-                            format!("`{}` is not a stage number", shown_name(n)),
-                            format!(
-                                "[stages.2] to [stages.{}] (stage 1 is the study's own design)",
-                                keys::MAX_STAGES
-                            ),
-                        ));
-                    }
-                    raw.read_section(text, &section, sub, sline)?;
-                }
+                raw.read_stages(text, item, line)?;
                 continue;
             }
             if !is_section(name) {
@@ -318,6 +218,134 @@ impl RawStudy {
             raw.read_section(text, name, item, line)?;
         }
         Ok(raw)
+    }
+
+    /// `[variables.<name>]` and `[variables.stage<N>.<name>]` sections.
+    fn read_variables(
+        &mut self,
+        text: &str,
+        item: &Item,
+        line: Option<usize>,
+    ) -> Result<(), CliError> {
+        let table = item.as_table_like().ok_or_else(|| {
+            CliError::input(
+                &self.file,
+                line,
+                "variables",
+                "must be a table of variables",
+                "[variables.<name>] sections",
+            )
+        })?;
+        for (var, sub) in table.iter() {
+            let vline = table
+                .get_key_value(var)
+                .and_then(|(k, _)| k.span())
+                .map(|s| line_of(text, s.start))
+                .or(line);
+            if let Some(n) = var
+                .strip_prefix("stage")
+                .filter(|n| keys::stage_number(n).is_some())
+            {
+                // [variables.stage2.pitch]: a variable of a later stage.
+                let stage = sub.as_table_like().ok_or_else(|| {
+                    CliError::input(
+                        &self.file,
+                        vline,
+                        format!("variables.{var}"),
+                        "must be a table of variables",
+                        format!("[variables.stage{n}.<name>] sections"),
+                    )
+                })?;
+                for (name, item) in stage.iter() {
+                    let nline = stage
+                        .get_key_value(name)
+                        .and_then(|(k, _)| k.span())
+                        .map(|s| line_of(text, s.start))
+                        .or(vline);
+                    let section = format!("variables.stage{n}.{}", shown_name(name));
+                    if !is_section(&section) {
+                        let names: Vec<&str> = variable_names()
+                            .into_iter()
+                            .filter(|v| *v != "water_recovery")
+                            .collect();
+                        return Err(CliError::input(
+                            &self.file,
+                            nline,
+                            section,
+                            format!(
+                                "unknown design variable `{}` of stage {n}",
+                                shown_name(name)
+                            ),
+                            names.join(", "),
+                        ));
+                    }
+                    self.read_section(text, &section, item, nline)?;
+                }
+                continue;
+            }
+            let section = format!("variables.{}", shown_name(var));
+            if !is_section(&section) {
+                let names = variable_names();
+                let msg = match closest(var, names.iter().copied()) {
+                    Some(b) => {
+                        format!(
+                            "unknown design variable `{}`; did you mean `{b}`?",
+                            shown_name(var)
+                        )
+                    }
+                    None => format!("unknown design variable `{}`", shown_name(var)),
+                };
+                return Err(CliError::input(
+                    &self.file,
+                    vline,
+                    section,
+                    msg,
+                    names.join(", "),
+                ));
+            }
+            self.read_section(text, &section, sub, vline)?;
+        }
+        Ok(())
+    }
+
+    /// `[stages.<N>]` sections.
+    fn read_stages(
+        &mut self,
+        text: &str,
+        item: &Item,
+        line: Option<usize>,
+    ) -> Result<(), CliError> {
+        let table = item.as_table_like().ok_or_else(|| {
+            CliError::input(
+                &self.file,
+                line,
+                "stages",
+                "must be a table of stages",
+                "[stages.2], [stages.3], ... sections",
+            )
+        })?;
+        for (n, sub) in table.iter() {
+            let sline = table
+                .get_key_value(n)
+                .and_then(|(k, _)| k.span())
+                .map(|s| line_of(text, s.start))
+                .or(line);
+            let section = format!("stages.{}", shown_name(n));
+            if keys::stage_number(n).is_none() {
+                return Err(CliError::input(
+                    &self.file,
+                    sline,
+                    section,
+                    format!("`{}` is not a stage number", shown_name(n)),
+                    format!(
+                        "[stages.2] to [stages.{}] (stage 1 is the study's own design)",
+                        keys::MAX_STAGES
+                    ),
+                ));
+            }
+            self.read_section(text, &section, sub, sline)?;
+        }
+        Ok(())
     }
 
     fn read_section(
