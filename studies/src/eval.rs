@@ -27,6 +27,36 @@ pub fn sig(x: f64, sig: usize) -> String {
     format!("{x:.decimals$}")
 }
 
+/// The sheet's mass-transfer section.
+fn mass_transfer_rows(s: &mut String, t: &model::output::TransferOut) {
+    s.push_str("\nMass transfer\n");
+    row(
+        s,
+        "Sherwood number (channel mean)",
+        sig(t.sherwood_mean, 4),
+        "-",
+    );
+    row(
+        s,
+        "boundary layer (channel mean)",
+        sig(t.boundary_layer_thickness_mean_m * 1e6, 4),
+        "um",
+    );
+    row(
+        s,
+        "limiting current density (feed)",
+        sig(t.limiting_current_density_feed_A_m2, 4),
+        "A/m2",
+    );
+    row(s, "limiting membrane", t.limiting_membrane.clone(), "");
+    row(
+        s,
+        "funnelling factor (channel mean)",
+        sig(t.funnelling_factor, 4),
+        "-",
+    );
+}
+
 fn row(out: &mut String, label: &str, value: String, unit: &str) {
     let line = format!("  {label:<34} {value:>12} {unit}");
     let _ = writeln!(out, "{}", line.trim_end());
@@ -331,33 +361,7 @@ pub fn design_sheet(input: &SheetInput) -> String {
         "kPa",
     );
 
-    let t = &e.transfer;
-    s.push_str("\nMass transfer\n");
-    row(
-        &mut s,
-        "Sherwood number (channel mean)",
-        sig(t.sherwood_mean, 4),
-        "-",
-    );
-    row(
-        &mut s,
-        "boundary layer (channel mean)",
-        sig(t.boundary_layer_thickness_mean_m * 1e6, 4),
-        "um",
-    );
-    row(
-        &mut s,
-        "limiting current density (feed)",
-        sig(t.limiting_current_density_feed_A_m2, 4),
-        "A/m2",
-    );
-    row(&mut s, "limiting membrane", t.limiting_membrane.clone(), "");
-    row(
-        &mut s,
-        "funnelling factor (channel mean)",
-        sig(t.funnelling_factor, 4),
-        "-",
-    );
+    mass_transfer_rows(&mut s, &e.transfer);
 
     let f = &e.performance;
     s.push_str("\nPerformance\n");
