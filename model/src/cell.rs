@@ -25,9 +25,10 @@
 //! Newton steps kept inside the bracket ([`crate::numerics::newton_bracketed`]).
 
 use crate::constants::{RomConstants, FARADAY};
-use crate::design::{Design, PatternSide};
+use crate::design::{Design, MembranePhysics, PatternSide};
 use crate::hydraulics::{channel_flow, ChannelFlow};
 use crate::interface::{water_splitting_share, Layer, Surface};
+use crate::membrane::{pair_state, Exchange, Membrane, RESISTANCE_REFERENCE_MOL_M3};
 use crate::numerics::newton_bracketed;
 use crate::properties::{properties, ConductivityModel, Properties};
 use crate::transfer::SherwoodModel;
@@ -102,6 +103,25 @@ pub struct Cell {
     pub xi0: f64,
     /// ROM constants.
     pub k: RomConstants,
+    /// Which effects of real membranes are on.
+    pub physics: MembranePhysics,
+    /// The CEM ([`crate::membrane`]): effective fixed charge from its transport number at the
+    /// diluate feed.
+    pub mem_cem: Membrane,
+    /// The AEM.
+    pub mem_aem: Membrane,
+    /// Solution conductivity at 0.5 M, the datasheet condition of the area resistances, S/m.
+    pub kappa_ref: f64,
+    /// F D, C m^2/(mol s) (the Peers limit is F D c / ((t_m - t) delta)).
+    pub fd: f64,
+    /// Cation transport number of the solution, -.
+    pub tp: f64,
+    /// Electro-osmotic volume per unit current of both membranes, V_w (t_w,CEM + t_w,AEM) / F,
+    /// m^3/C (0 without water transport).
+    pub eo_m3_c: f64,
+    /// Osmotic volume flux per unit concentration difference, 2 R T (L_p,CEM + L_p,AEM),
+    /// m/s per mol/m^3 (0 without water transport).
+    pub osmotic_m4_mol_s: f64,
 }
 
 /// Warm-start values of the point solve (the previous point's layer voltages and slopes).
@@ -140,6 +160,10 @@ pub struct PointSolution {
     pub limiting: f64,
     /// True when the CEM has the lower heterogeneous limit.
     pub cem_limits: bool,
+    /// Salt back-diffusion into the diluate in current units, A/m^2 (0 when off).
+    pub back_a_m2: f64,
+    /// Water flux out of the diluate (osmosis and electro-osmosis), m/s (0 when off).
+    pub water_m_s: f64,
 }
 
 /// The local state that does not depend on the current (one per point).
@@ -157,6 +181,13 @@ pub struct Point {
     pub inv_cc: f64,
     /// 1 / i_lim on the concentrate side of the AEM, m^2/A.
     pub inv_ca: f64,
+    /// tm_CEM + tm_AEM - 1 here (with Donnan transport numbers, local), -.
+    pub xi0: f64,
+    /// Salt back-diffusion into the diluate through both membranes, in current units
+    /// F J_s, A/m^2 (0 when off).
+    pub back_a_m2: f64,
+    /// Osmotic water flux out of the diluate, m/s (0 when off).
+    pub osmotic_m_s: f64,
 }
 
 impl Cell {
@@ -198,10 +229,41 @@ impl Cell {
             PatternSide::Both => 0.5 * gap,
             _ => gap,
         };
+        let ph = m.physics;
+        let c_f = w.feed_concentration_mol_m3;
+        let mem_cem = Membrane::new(
+            Exchange::Cation,
+            m.cem_transport_number,
+            c_f,
+            tp,
+            m.cem_area_resistance_ohm_m2,
+            ph.cem,
+        );
+        let mem_aem = Membrane::new(
+            Exchange::Anion,
+            m.aem_transport_number,
+            c_f,
+            tp,
+            m.aem_area_resistance_ohm_m2,
+            ph.aem,
+        );
+        let cond = ConductivityModel::new(w.salt, w.temperature_k);
+        let water_volume = crate::membrane::WATER_MOLAR_MASS_KG_MOL
+            / crate::properties::water_density(w.temperature_k);
+        let (eo, osm) = if ph.water_transport {
+            (
+                water_volume * (ph.cem.water_transport_number + ph.aem.water_transport_number)
+                    / FARADAY,
+                crate::membrane::osmotic_pressure(w.temperature_k, 1.0)
+                    * (ph.cem.water_permeability_m_s_pa + ph.aem.water_permeability_m_s_pa),
+            )
+        } else {
+            (0.0, 0.0)
+        };
         Cell {
             vt: props.thermal_voltage_v,
             props,
-            cond: ConductivityModel::new(w.salt, w.temperature_k),
+            cond,
             tm_cem: m.cem_transport_number,
             tm_aem: m.aem_transport_number,
             r_cem: m.cem_area_resistance_ohm_m2 / f_cem,
@@ -223,6 +285,14 @@ impl Cell {
             peers_aem: FARADAY * d / (m.aem_transport_number - (1.0 - tp)),
             xi0: m.cem_transport_number + m.aem_transport_number - 1.0,
             k: *k,
+            physics: ph,
+            mem_cem,
+            mem_aem,
+            kappa_ref: cond.conductivity(RESISTANCE_REFERENCE_MOL_M3),
+            fd: FARADAY * d,
+            tp,
+            eo_m3_c: eo,
+            osmotic_m4_mol_s: osm,
         }
     }
 
@@ -234,25 +304,62 @@ impl Cell {
         let kappa_c = self.cond.conductivity(c_c);
         let core_d = (self.gap_d - 2.0 * delta_d).max(0.0) * self.flow_d.shadow_factor;
         let core_c = (self.gap_c - 2.0 * delta_c).max(0.0) * self.flow_c.shadow_factor;
-        let cem = self.cem.layer(self.peers_cem * c_d / delta_d, delta_d);
-        let aem = self.aem.layer(self.peers_aem * c_d / delta_d, delta_d);
+        let ph = &self.physics;
+        // Transport numbers, membrane potential and back-diffusion: ideal (constant transport
+        // numbers, E = sum (2 t - 1) V_T ln(c_c/c_d)) or Donnan at each face (TMS).
+        let (xi0, peers_cem, peers_aem, e_mem, back) = if ph.donnan || ph.salt_back_diffusion {
+            let st = pair_state(&self.mem_cem, &self.mem_aem, c_d, c_c);
+            let back = if ph.salt_back_diffusion {
+                FARADAY * st.salt_back_flux
+            } else {
+                0.0
+            };
+            if ph.donnan {
+                (
+                    st.t_cem + st.t_aem - 1.0,
+                    self.fd / (st.t_cem - self.tp),
+                    self.fd / (st.t_aem - (1.0 - self.tp)),
+                    self.vt * st.potential,
+                    back,
+                )
+            } else {
+                let e = 2.0 * self.xi0 * self.vt * (c_c / c_d).ln();
+                (self.xi0, self.peers_cem, self.peers_aem, e, back)
+            }
+        } else {
+            let e = 2.0 * self.xi0 * self.vt * (c_c / c_d).ln();
+            (self.xi0, self.peers_cem, self.peers_aem, e, 0.0)
+        };
+        let cem = self.cem.layer(peers_cem * c_d / delta_d, delta_d);
+        let aem = self.aem.layer(peers_aem * c_d / delta_d, delta_d);
         // The diluate constriction inside the funnelling film (thickness ratio x delta) is in
         // Phi and the layer law already: count the rest once.
         let film = self.k.funnel_layer_ratio * delta_d;
         let inside = film * (1.0 / cem.phi - 1.0) + film * (1.0 / aem.phi - 1.0);
         let constriction_d = (self.constriction_d_m - inside).max(0.0);
-        let r_ohm = self.r_cem
-            + self.r_aem
+        // The membranes' own resistance: constant, or rising in dilute solution (Galama et al.
+        // 2014 two-resistor form at the more dilute of the two solutions).
+        let r_mem = if ph.concentration_dependent_resistance {
+            let ratio = self.kappa_ref * crate::membrane::dilute_resistivity(kappa_d, kappa_c);
+            let f = |phi: f64| (1.0 - phi) + phi * ratio;
+            self.r_cem * f(ph.cem.solution_resistance_share)
+                + self.r_aem * f(ph.aem.solution_resistance_share)
+        } else {
+            self.r_cem + self.r_aem
+        };
+        let r_ohm = r_mem
             + (constriction_d + core_d) / kappa_d
             + (self.constriction_c_m + core_c) / kappa_c;
-        let e_mem = 2.0 * self.xi0 * self.vt * (c_c / c_d).ln();
         Point {
             cem,
             aem,
             e_mem,
             r_ohm,
-            inv_cc: delta_c / (self.peers_cem * c_c),
-            inv_ca: delta_c / (self.peers_aem * c_c),
+            inv_cc: delta_c / (peers_cem * c_c),
+            inv_ca: delta_c / (peers_aem * c_c),
+            xi0,
+            back_a_m2: back,
+            osmotic_m_s: self.osmotic_m4_mol_s * (c_c - c_d),
         }
     }
 
@@ -331,13 +438,15 @@ impl Cell {
             current_density: i,
             v_cem,
             v_aem,
-            xi: self.xi0 * (1.0 - 0.5 * (ws_cem + ws_aem)),
+            xi: p.xi0 * (1.0 - 0.5 * (ws_cem + ws_aem)),
             ws_cem,
             ws_aem,
             alpha,
             wavelength,
             limiting: p.cem.i_het.min(p.aem.i_het),
             cem_limits,
+            back_a_m2: p.back_a_m2,
+            water_m_s: p.osmotic_m_s + self.eo_m3_c * i,
         }
     }
 

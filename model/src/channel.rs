@@ -25,9 +25,12 @@ use crate::numerics::secant_then_brent;
 use crate::output::Profiles;
 use crate::ModelError;
 
-/// Number of integrated components: c_d, int i dx, int xi i dx, int alpha dx,
-/// int lambda dx (where electroconvective), length with electroconvection.
-const N: usize = 6;
+/// Number of integrated components: the diluate salt flow per unit inlet flow (the diluate
+/// concentration when no water crosses the membranes), int i dx, int xi i dx, int alpha dx,
+/// int lambda dx (where electroconvective), length with electroconvection, and the diluate
+/// flow per unit inlet flow (1 without water transport). Salt and water flows are linear in
+/// the state, so both balances close to round-off (Runge-Kutta preserves linear invariants).
+const N: usize = 7;
 type State = [f64; N];
 
 /// Work counters over all integrations of one evaluation.
@@ -72,6 +75,13 @@ pub struct ChannelResult {
     pub c_d_out: f64,
     /// Concentrate outlet concentration, mol/m^3.
     pub c_c_out: f64,
+    /// Diluate salt flow at the outlet per unit diluate inlet flow, mol/m^3 (equal to
+    /// `c_d_out` without water transport).
+    pub salt_out_mol_m3: f64,
+    /// Diluate outlet flow / diluate inlet flow, - (1 without water transport).
+    pub diluate_flow_ratio: f64,
+    /// Concentrate outlet flow / concentrate inlet flow, - (1 without water transport).
+    pub concentrate_flow_ratio: f64,
     /// Current per channel width, integral of i dx, A/m.
     pub current_per_width: f64,
     /// Integral of xi i dx, A/m (salt removal in current units).
@@ -118,6 +128,11 @@ const CONCENTRATION_CLAMP: f64 = 1e-18;
 /// the membrane potential ln(c_c / c_d) so large that the step control failed (a random
 /// counter-current design in `energy_never_below_thermodynamic_minimum`).
 const CONCENTRATE_CLAMP: f64 = 1e-12;
+
+/// Diluate flow, as a share of its inlet flow, below which an integration stops with an error:
+/// water transport (osmosis from a very strong concentrate over a long channel) has taken
+/// nearly all of the diluate, and the product, if any, is outside what the model describes.
+pub const DILUATE_FLOW_FLOOR: f64 = 0.05;
 
 /// Share of the feed down to which the step control is relative (below it, absolute at
 /// rel_tol times this share of the feed). The outlet claim (1e-6 relative) is made down to
@@ -167,13 +182,13 @@ fn locate_kink(
     v1: f64,
     kink_tol: f64,
 ) -> f64 {
-    let herm = |t: f64| {
+    let herm = |t: f64, c: usize| {
         let t2 = t * t;
         let t3 = t2 * t;
-        (2.0 * t3 - 3.0 * t2 + 1.0) * y[0]
-            + (t3 - 2.0 * t2 + t) * h * k0[0]
-            + (-2.0 * t3 + 3.0 * t2) * y1[0]
-            + (t3 - t2) * h * k1[0]
+        (2.0 * t3 - 3.0 * t2 + 1.0) * y[c]
+            + (t3 - 2.0 * t2 + t) * h * k0[c]
+            + (-2.0 * t3 + 3.0 * t2) * y1[c]
+            + (t3 - t2) * h * k1[c]
     };
     // Aim half a tolerance short of the kink, on the start side.
     let dir = (v1 - v0).signum();
@@ -194,7 +209,7 @@ fn locate_kink(
         if !(t > ta && t < tb) {
             t = 0.5 * (ta + tb);
         }
-        let sol = rhs.point(s + t * h, herm(t));
+        let sol = rhs.point(s + t * h, herm(t, 0), herm(t, 6));
         let v = if layer == 0 { sol.v_cem } else { sol.v_aem };
         let f = v - aim;
         if f * fa > 0.0 {
@@ -276,6 +291,10 @@ struct Rhs<'a> {
     u: f64,
     /// Concentrate concentration at x = 0, mol/m^3.
     c_c_at0: f64,
+    /// Concentrate flow at x = 0 per unit concentrate inlet flow (1 for co-current flow).
+    w_at0: f64,
+    /// Water crosses the membranes.
+    water: bool,
     /// h_d u_d / (h_c u_c).
     ratio: f64,
     /// F h_d u_d.
@@ -331,8 +350,50 @@ impl Rhs<'_> {
         }
     }
 
+    /// Diluate and concentrate concentrations (clamped for the point solve) from the salt
+    /// and water components of the state.
+    #[inline]
+    fn conc(&self, y0: f64, y6: f64) -> (f64, f64) {
+        if !self.water {
+            let c_d = y0.max(CONCENTRATION_CLAMP * self.streams.c_d_in);
+            return (
+                c_d,
+                self.c_c(c_d).max(CONCENTRATE_CLAMP * self.streams.c_d_in),
+            );
+        }
+        let c_d = (y0 / y6).max(CONCENTRATION_CLAMP * self.streams.c_d_in);
+        (
+            c_d,
+            self.c_c_water(y0, y6)
+                .max(CONCENTRATE_CLAMP * self.streams.c_d_in),
+        )
+    }
+
+    /// Concentrate concentration with water transport: its salt flow over its flow, both per
+    /// unit concentrate inlet flow.
+    fn c_c_water(&self, y0: f64, y6: f64) -> f64 {
+        let salt = self.ratio * (self.streams.c_d_in - y0);
+        let water = self.ratio * (1.0 - y6);
+        let n0 = self.c_c_at0 * self.w_at0;
+        if self.streams.counter {
+            (n0 - salt) / (self.w_at0 - water)
+        } else {
+            (n0 + salt) / (self.w_at0 + water)
+        }
+    }
+
+    /// Diluate and concentrate concentrations of a state, unclamped (for profiles and
+    /// outlets).
+    fn outlets(&self, y0: f64, y6: f64) -> (f64, f64) {
+        if self.water {
+            (y0 / y6, self.c_c_water(y0, y6))
+        } else {
+            (y0, self.c_c(y0))
+        }
+    }
+
     #[allow(clippy::float_cmp)] // exact on purpose: the history is keyed by the exact s of a solved point
-    fn point(&mut self, s: f64, c_d: f64) -> PointSolution {
+    fn point(&mut self, s: f64, y0: f64, y6: f64) -> PointSolution {
         let cell = self.cell;
         let s = s.max(1e-4);
         let delta_d = cell.sh_d.delta_at_s(s, self.length);
@@ -341,8 +402,7 @@ impl Rhs<'_> {
         } else {
             cell.sh_c.delta_at_s(s, self.length)
         };
-        let c_d = c_d.max(CONCENTRATION_CLAMP * self.streams.c_d_in);
-        let c_c = self.c_c(c_d).max(CONCENTRATE_CLAMP * self.streams.c_d_in);
+        let (c_d, c_c) = self.conc(y0, y6);
         let p = cell.point(delta_d, delta_c, c_d, c_c);
         self.evaluations += 1;
         // Warm start: the layer voltages extrapolated (or interpolated) in s along a
@@ -365,17 +425,29 @@ impl Rhs<'_> {
         if dxds == 0.0 {
             return ([0.0; N], PointSolution::default());
         }
-        let sol = self.point(s, y[0]);
+        let sol = self.point(s, y[0], y[6]);
         let i = sol.current_density;
         let ec = sol.wavelength > 0.0;
+        // Salt leaves the diluate by migration (xi i / F) and comes back by diffusion.
+        let d_salt = if self.cell.physics.salt_back_diffusion {
+            -dxds * (sol.xi * i - sol.back_a_m2) / self.flux
+        } else {
+            -dxds * sol.xi * i / self.flux
+        };
+        let d_water = if self.water {
+            -dxds * sol.water_m_s * FARADAY / self.flux
+        } else {
+            0.0
+        };
         (
             [
-                -dxds * sol.xi * i / self.flux,
+                d_salt,
                 dxds * i,
                 dxds * sol.xi * i,
                 dxds * sol.alpha,
                 dxds * sol.wavelength,
                 if ec { dxds } else { 0.0 },
+                d_water,
             ],
             sol,
         )
@@ -399,13 +471,18 @@ const DENSE: [f64; 7] = [
 /// to `y1` with stages `k` (the continuous extension of order 4: its error is of the order of
 /// the step's local error, so interior points are as accurate as the step ends).
 fn dense_c(y0: f64, y1: f64, k: &[State; 7], h: f64, theta: f64) -> f64 {
+    dense(y0, y1, k, h, theta, 0)
+}
+
+/// [`dense_c`] for component `comp` of the state.
+fn dense(y0: f64, y1: f64, k: &[State; 7], h: f64, theta: f64, comp: usize) -> f64 {
     let diff = y1 - y0;
-    let b = h * k[0][0] - diff;
-    let c = diff - h * k[6][0] - b;
+    let b = h * k[0][comp] - diff;
+    let c = diff - h * k[6][comp] - b;
     let d = h * DENSE
         .iter()
         .zip(k.iter())
-        .map(|(w, kj)| w * kj[0])
+        .map(|(w, kj)| w * kj[comp])
         .sum::<f64>();
     let t1 = 1.0 - theta;
     y0 + theta * (diff + t1 * (b + theta * (c + t1 * d)))
@@ -482,19 +559,22 @@ fn integrate_once(
     streams: Streams,
     length: f64,
     u: f64,
-    c_c_at0: f64,
+    (c_c_at0, w_at0): (f64, f64),
     end: End,
     rel_tol: f64,
     want_profiles: bool,
     stats: &mut Stats,
 ) -> Result<ChannelResult, ModelError> {
     stats.integrations += 1;
+    let water = cell.physics.water_transport;
     let mut rhs = Rhs {
         cell,
         streams,
         length,
         u,
         c_c_at0,
+        w_at0,
+        water,
         ratio: cell.gap_d * streams.u_d / (cell.gap_c * streams.u_c),
         flux: FARADAY * cell.gap_d * streams.u_d,
         delta_c_mean: cell.sh_c.hydraulic_diameter_m / cell.sh_c.mean(length),
@@ -509,11 +589,12 @@ fn integrate_once(
     let mut profiles = want_profiles.then(Profiles::default);
     // The layer voltages at the inlet start the knee and kink tracking (they are not zero
     // where the layer does not develop from the inlet, as in spacer-filled channels).
-    let inlet = rhs.point(0.0, streams.c_d_in);
+    let inlet = rhs.point(0.0, streams.c_d_in, 1.0);
     if let Some(p) = profiles.as_mut() {
-        push_profile(p, 0.0, streams.c_d_in, rhs.c_c(streams.c_d_in), &inlet);
+        let (c_d, c_c) = rhs.outlets(streams.c_d_in, 1.0);
+        push_profile(p, 0.0, c_d, c_c, &inlet);
     }
-    let mut y: State = [streams.c_d_in, 0.0, 0.0, 0.0, 0.0, 0.0];
+    let mut y: State = [streams.c_d_in, 0.0, 0.0, 0.0, 0.0, 0.0, 1.0];
     let mut s = 0.0;
     let (mut k0, _) = rhs.eval(s, &y);
     // The inlet layer develops over s of a few hundredths: start there.
@@ -572,7 +653,11 @@ fn integrate_once(
         let (y_new, k_new, err, sol) = dp_step(&mut rhs, s, &y, &k0, h, &mut stages);
         let tol_step = (rel_tol * (h / H_REF).min(1.0)).max(tol_floor);
         let sc0 = atol0 + tol_step * y[0].abs().max(y_new[0].abs());
-        let en = (err[0].abs() / sc0).max(err[1].abs() * to_conc / sc0);
+        let mut en = (err[0].abs() / sc0).max(err[1].abs() * to_conc / sc0);
+        if water {
+            // The diluate flow (about 1) to the same relative tolerance.
+            en = en.max(err[6].abs() / (tol_step * y[6].abs().max(y_new[6].abs())));
+        }
         // Largest move of a layer voltage along its classic branch over the trial step.
         let q_knee = knee_ratio(v_start_cem, sol.v_cem, v_start_aem, sol.v_aem);
         if !en.is_finite() || y_new.iter().any(|v| !v.is_finite()) {
@@ -648,10 +733,23 @@ fn integrate_once(
         let mut sol_acc = sol;
         let mut s_acc = s + h;
         if let End::Target(target) = end {
-            if y_new[0] <= target {
+            // The product reaches the target where the salt flow equals the target times the
+            // diluate flow: z = y0 - target y6 = 0, linear in the state (without water
+            // transport y6 = 1 and the test is on y0 itself).
+            let (z, zt): (fn(&State, f64) -> f64, f64) = if water {
+                (|y, target| y[0] - target * y[6], 0.0)
+            } else {
+                (|y, _| y[0], target)
+            };
+            if z(&y_new, target) <= zt {
                 // Locate the crossing on a cubic Hermite interpolant of c_d(s), then re-step
                 // exactly to it and correct with secant steps.
-                let (y0a, y0b, fa, fb) = (y[0], y_new[0], k0[0] * h, k_new[0] * h);
+                let (y0a, y0b, fa, fb) = (
+                    z(&y, target),
+                    z(&y_new, target),
+                    z(&k0, target) * h,
+                    z(&k_new, target) * h,
+                );
                 let herm = |t: f64| {
                     let t2 = t * t;
                     let t3 = t2 * t;
@@ -664,7 +762,7 @@ fn integrate_once(
                 let mut hi = 1.0;
                 for _ in 0..60 {
                     let mid = 0.5 * (lo + hi);
-                    if herm(mid) > target {
+                    if herm(mid) > zt {
                         lo = mid;
                     } else {
                         hi = mid;
@@ -676,11 +774,12 @@ fn integrate_once(
                     y_acc = yt;
                     k_acc = kt;
                     sol_acc = st;
-                    let miss = yt[0] - target;
-                    if miss.abs() <= 1e-4 * rel_tol * target || kt[0] == 0.0 {
+                    let miss = z(&yt, target) - zt;
+                    let slope = z(&kt, target);
+                    if miss.abs() <= 1e-4 * rel_tol * target || slope == 0.0 {
                         break;
                     }
-                    hs = (hs - miss / kt[0]).clamp(1e-3 * h, h);
+                    hs = (hs - miss / slope).clamp(1e-3 * h, h);
                 }
                 s_acc = s + hs;
                 end_s = s_acc;
@@ -707,9 +806,12 @@ fn integrate_once(
                 if s_j <= s {
                     continue;
                 }
-                let c = dense_c(y[0], y_acc[0], &stages, h_acc, (s_j - s) / h_acc);
-                let sol_j = rhs.point(s_j, c);
-                push_profile(p, length * frac, c.max(0.0), rhs.c_c(c), &sol_j);
+                let theta = (s_j - s) / h_acc;
+                let c = dense_c(y[0], y_acc[0], &stages, h_acc, theta);
+                let q = dense(y[6], y_acc[6], &stages, h_acc, theta, 6);
+                let sol_j = rhs.point(s_j, c, q);
+                let (c_d, c_c) = rhs.outlets(c, q);
+                push_profile(p, length * frac, c_d.max(0.0), c_c, &sol_j);
             }
             (rhs.history, rhs.guess, rhs.evaluations) = saved;
         }
@@ -722,8 +824,16 @@ fn integrate_once(
         max_v_cem = max_v_cem.max(sol_acc.v_cem);
         max_v_aem = max_v_aem.max(sol_acc.v_aem);
         max_ws = max_ws.max(sol_acc.ws_cem).max(sol_acc.ws_aem);
+        if water && !(y[6] >= DILUATE_FLOW_FLOOR) {
+            return Err(ModelError::Numerical(format!(
+                "water transport takes more than {:.0} % of the diluate flow (osmosis from the \
+                 concentrate, electro-osmosis): outside the model",
+                100.0 * (1.0 - DILUATE_FLOW_FLOOR)
+            )));
+        }
         if let Some(p) = profiles.as_mut() {
-            push_profile(p, length * s * s * s, y[0], rhs.c_c(y[0]), &sol_acc);
+            let (c_d, c_c) = rhs.outlets(y[0], y[6]);
+            push_profile(p, length * s * s * s, c_d, c_c, &sol_acc);
         }
         history_acc = (rhs.history, rhs.guess);
         if s >= 1.0 {
@@ -754,23 +864,34 @@ fn integrate_once(
         knee_rate_prev = q_acc / h_acc;
     }
     stats.point_solves += rhs.evaluations as u64;
+    let (c_d_end, c_c_end) = rhs.outlets(y[0], y[6]);
     if let End::Target(target) = end {
-        if end_s >= 1.0 && y[0] > target {
+        if end_s >= 1.0 && c_d_end > target {
             return Err(ModelError::TargetUnreachable {
                 target_mol_m3: target,
                 max_length_m: length,
-                outlet_mol_m3: y[0],
+                outlet_mol_m3: c_d_end,
             });
         }
     }
     let l = length * end_s * end_s * end_s;
-    let c_c_end = rhs.c_c(y[0]);
     let c_c_out = if streams.counter { c_c_at0 } else { c_c_end };
+    // Concentrate outlet flow per unit inlet flow: at x = 0 for counter-current flow.
+    let concentrate_flow_ratio = if !water {
+        1.0
+    } else if streams.counter {
+        w_at0
+    } else {
+        w_at0 + rhs.ratio * (1.0 - y[6])
+    };
     Ok(ChannelResult {
         length_m: l,
         // A diluate emptied of salt may overshoot zero by the local error tolerance.
-        c_d_out: y[0].max(0.0),
+        c_d_out: c_d_end.max(0.0),
         c_c_out,
+        salt_out_mol_m3: y[0].max(0.0),
+        diluate_flow_ratio: y[6],
+        concentrate_flow_ratio,
         current_per_width: y[1],
         salt_current_per_width: y[2],
         alpha_mean: y[3] / l,
@@ -834,67 +955,145 @@ pub fn integrate(
     stats: &mut Stats,
 ) -> Result<ChannelResult, ModelError> {
     let ratio = cell.gap_d * streams.u_d / (cell.gap_c * streams.u_c);
-    // The concentrate concentration at x = 0: its inlet for co-current flow; for
-    // counter-current flow its outlet, known from the target in target mode, otherwise found
-    // by shooting: the diluate outlet c such that integrating with the concentrate outlet
-    // c_c,in + r (c_in - c) returns c.
-    let c_c0 = if !streams.counter {
-        streams.c_c_in
-    } else if let End::Target(target) = end {
-        streams.c_c_in + ratio * (streams.c_d_in - target)
-    } else {
-        // The shooting stops at an outlet that reproduces itself to 1e-2 rel_tol (relative,
-        // down to the relative floor): the root's error then stays a hundred times inside the
-        // integration's own.
-        let c_floor = RELATIVE_FLOOR * streams.c_d_in;
-        let at = |c_out: f64| {
-            let c_c0 = streams.c_c_in + ratio * (streams.c_d_in - c_out);
-            let r = integrate_once(cell, streams, length, u, c_c0, end, rel_tol, false, stats)?;
-            Ok((r.c_d_out - c_out, r))
-        };
-        let close_enough = |c_out: f64| 1e-2 * rel_tol * c_out.abs().max(c_floor);
-        // Secant steps from the outlet with the concentrate at its inlet concentration
-        // (c = c_in) and, one fixed-point step on, the outlet that integration gave: the outlet
-        // depends only weakly on the concentrate, so they converge in a few integrations.
-        // Brent takes over when they stall, with c = 0 (where the miss is never negative) as
-        // the end of the bracket that the points may lack.
-        let search = |g: &mut dyn FnMut(f64) -> Result<f64, Shot>| -> Result<f64, Shot> {
+    let water = cell.physics.water_transport;
+    // The concentrate at x = 0 (concentration, flow per unit concentrate inlet flow): its inlet
+    // for co-current flow; for counter-current flow its outlet, which follows from the diluate
+    // outlet's salt flow per unit inlet flow (`salt`) and flow ratio (`flow`) by the salt and
+    // water balances.
+    let at0 = |salt: f64, flow: f64| -> (f64, f64) {
+        let n0 = streams.c_c_in + ratio * (streams.c_d_in - salt);
+        if water {
+            let w0 = 1.0 + ratio * (1.0 - flow);
+            (n0 / w0, w0)
+        } else {
+            (n0, 1.0)
+        }
+    };
+    if !streams.counter {
+        return integrate_once(
+            cell,
+            streams,
+            length,
+            u,
+            (streams.c_c_in, 1.0),
+            end,
+            rel_tol,
+            want_profiles,
+            stats,
+        );
+    }
+    // Counter-current flow with water transport: the diluate outlet flow is not known in
+    // advance either. A fixed point on it around the salt solve (osmosis ties the water to
+    // the concentrate only weakly, so it converges in a few rounds); without water transport
+    // the first round is the only one.
+    let flow_tol = 1e-2 * rel_tol;
+    let mut flow = 1.0;
+    let mut x_start = streams.c_d_in;
+    for _ in 0..30 {
+        let (r, root) = if let End::Target(target) = end {
+            // Known from the target in target mode.
+            let r = integrate_once(
+                cell,
+                streams,
+                length,
+                u,
+                at0(target * flow, flow),
+                end,
+                rel_tol,
+                want_profiles,
+                stats,
+            )?;
+            (r, target * flow)
+        } else {
+            // Otherwise found by shooting: the diluate outlet salt flow c such that integrating
+            // with the concentrate outlet that the balances give returns c. The shooting stops
+            // at an outlet that reproduces itself to 1e-2 rel_tol (relative, down to the
+            // relative floor): the root's error then stays a hundred times inside the
+            // integration's own.
+            let c_floor = RELATIVE_FLOOR * streams.c_d_in;
+            let at = |c_out: f64| {
+                let r = integrate_once(
+                    cell,
+                    streams,
+                    length,
+                    u,
+                    at0(c_out, flow),
+                    end,
+                    rel_tol,
+                    false,
+                    stats,
+                )?;
+                Ok((r.salt_out_mol_m3 - c_out, r))
+            };
+            let close_enough = |c_out: f64| 1e-2 * rel_tol * c_out.abs().max(c_floor);
+            // Secant steps from the outlet with the concentrate at its inlet concentration
+            // (c = c_in; in later rounds, the last round's outlet) and, one fixed-point step
+            // on, the outlet that integration gave: the outlet depends only weakly on the
+            // concentrate, so they converge in a few integrations. Brent takes over when they
+            // stall, with c = 0 (where the miss is never negative) and c = c_in as the ends
+            // of the bracket that the points may lack.
+            // With salt back-diffusion a weak current can leave the diluate saltier than fed,
+            // so the outlet may lie above c = c_in, up to all the salt of both feeds.
             let hi = streams.c_d_in;
-            let g_hi = g(hi)?;
-            let x1 = (hi + g_hi).clamp(0.0, hi);
-            let pts = vec![(hi, g_hi), (x1, g(x1)?)];
-            let tol = 1e-3 * rel_tol * streams.c_d_in;
-            secant_then_brent(
-                g,
-                pts,
-                (0.0, hi),
-                &mut |_| Ok((hi, g_hi)),
-                &mut |g| Ok((0.0, g(0.0)?)),
-                tol,
-            )?
-            .ok_or_else(|| {
-                Shot::Model(ModelError::Numerical(
-                    "counter-current outlet not bracketed".into(),
-                ))
-            })
+            let hi_max = if cell.physics.salt_back_diffusion {
+                hi + streams.c_c_in / ratio
+            } else {
+                hi
+            };
+            let search = |g: &mut dyn FnMut(f64) -> Result<f64, Shot>| -> Result<f64, Shot> {
+                let x0 = x_start;
+                let g0 = g(x0)?;
+                let x1 = (x0 + g0).clamp(0.0, hi_max);
+                let pts = vec![(x0, g0), (x1, g(x1)?)];
+                let tol = 1e-3 * rel_tol * streams.c_d_in;
+                let mut below = |g: &mut dyn FnMut(f64) -> Result<f64, Shot>| {
+                    let (mut x, mut m) = (hi, if x0 == hi { g0 } else { g(hi)? });
+                    while m >= 0.0 && x < hi_max {
+                        x = (x + 2.0 * m.max(1e-3 * hi)).min(hi_max);
+                        m = g(x)?;
+                    }
+                    Ok((x, m))
+                };
+                secant_then_brent(
+                    g,
+                    pts,
+                    (0.0, hi_max),
+                    &mut below,
+                    &mut |g| Ok((0.0, g(0.0)?)),
+                    tol,
+                )?
+                .ok_or_else(|| {
+                    Shot::Model(ModelError::Numerical(
+                        "counter-current outlet not bracketed".into(),
+                    ))
+                })
+            };
+            let (root, kept) = outer_search(at, close_enough, search)?;
+            let r = match kept.filter(|_| !want_profiles) {
+                Some(r) => r,
+                None => integrate_once(
+                    cell,
+                    streams,
+                    length,
+                    u,
+                    at0(root, flow),
+                    end,
+                    rel_tol,
+                    want_profiles,
+                    stats,
+                )?,
+            };
+            (r, root)
         };
-        let (root, kept) = outer_search(at, close_enough, search)?;
-        if let Some(r) = kept.filter(|_| !want_profiles) {
+        if !water || (r.diluate_flow_ratio - flow).abs() <= flow_tol {
             return Ok(r);
         }
-        streams.c_c_in + ratio * (streams.c_d_in - root)
-    };
-    integrate_once(
-        cell,
-        streams,
-        length,
-        u,
-        c_c0,
-        end,
-        rel_tol,
-        want_profiles,
-        stats,
-    )
+        flow = r.diluate_flow_ratio;
+        x_start = root;
+    }
+    Err(ModelError::Numerical(
+        "counter-current water balance did not converge".into(),
+    ))
 }
 
 #[cfg(test)]

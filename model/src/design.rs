@@ -5,6 +5,8 @@
 
 use serde::{Deserialize, Serialize};
 
+pub use crate::membrane::MembraneMaterial;
+
 /// The dissolved 1:1 salt.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 pub enum Salt {
@@ -126,6 +128,63 @@ pub struct Membranes {
     pub open_fraction: f64,
     /// Which membrane carries the pattern.
     pub pattern_side: PatternSide,
+    /// The effects of real membranes the model includes, and their material data
+    /// ([`crate::membrane`]). With every effect off the membranes are ideal: constant
+    /// transport numbers and area resistances, no salt or water crossing them.
+    #[serde(default)]
+    pub physics: MembranePhysics,
+}
+
+/// Which effects of real membranes an evaluation includes ([`crate::membrane`]), each
+/// switchable, and the material data of the two membranes. The default has every effect on,
+/// with a generic homogeneous grade; [`MembranePhysics::ideal`] switches them all off and
+/// gives the ideal-membrane results of model revision 6 bit for bit.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct MembranePhysics {
+    /// Donnan (Teorell-Meyer-Sievers) transport numbers and membrane potential: the transport
+    /// numbers given are those at the diluate feed and fall as the concentrate strengthens.
+    pub donnan: bool,
+    /// Area resistances that rise in dilute solution (the datasheet value holds at 0.5 M).
+    pub concentration_dependent_resistance: bool,
+    /// Salt diffusion from the concentrate back into the diluate.
+    pub salt_back_diffusion: bool,
+    /// Water transport (osmosis and electro-osmosis) from the diluate into the concentrate.
+    pub water_transport: bool,
+    /// CEM material data.
+    pub cem: MembraneMaterial,
+    /// AEM material data.
+    pub aem: MembraneMaterial,
+}
+
+impl MembranePhysics {
+    /// Every effect on, generic homogeneous grades (the default).
+    pub const fn generic() -> Self {
+        MembranePhysics {
+            donnan: true,
+            concentration_dependent_resistance: true,
+            salt_back_diffusion: true,
+            water_transport: true,
+            cem: MembraneMaterial::generic(),
+            aem: MembraneMaterial::generic(),
+        }
+    }
+
+    /// Every effect off: ideal membranes (the model of revision 6).
+    pub const fn ideal() -> Self {
+        MembranePhysics {
+            donnan: false,
+            concentration_dependent_resistance: false,
+            salt_back_diffusion: false,
+            water_transport: false,
+            ..Self::generic()
+        }
+    }
+}
+
+impl Default for MembranePhysics {
+    fn default() -> Self {
+        Self::generic()
+    }
 }
 
 /// How the stack is driven.
@@ -263,6 +322,7 @@ impl Design {
                 pitch_m: 120e-6,
                 open_fraction: 0.5,
                 pattern_side: PatternSide::Cem,
+                physics: MembranePhysics::generic(),
             },
             operation: Operation {
                 velocity_m_s: 0.04,

@@ -48,6 +48,32 @@ pub fn minimum_work_streams(
     2.0 * GAS_CONSTANT * temperature_k * dg / q_d
 }
 
+/// Minimum work of turning two inlet streams into two outlet streams when water also moves
+/// between them (osmosis, electro-osmosis), ideal 1:1 solution, J per m^3 of diluate product:
+/// 2RT [sum_out Q g(c) - sum_in Q g(c)] / Q_d,out with g(c) = c (ln c - 1). The solvent's
+/// own free-energy term, about constant per volume, cancels because the total volume flow is
+/// conserved (the salt's partial volume neglected), and so does the salt's standard term by
+/// the salt balance. With equal inlet and outlet flows it is [`minimum_work_streams`].
+/// Flows `(diluate, concentrate)` in m^3/s (any common scale), concentrations in mol/m^3.
+pub fn minimum_work_flows(
+    temperature_k: f64,
+    q_in: (f64, f64),
+    c_in: (f64, f64),
+    q_out: (f64, f64),
+    c_out: (f64, f64),
+) -> f64 {
+    let c_ref = (q_in.0 * c_in.0 + q_in.1 * c_in.1) / (q_in.0 + q_in.1);
+    let g = |c: f64| {
+        if c > 0.0 {
+            c * (c / c_ref).ln() - c
+        } else {
+            0.0
+        }
+    };
+    let dg = q_out.0 * g(c_out.0) + q_out.1 * g(c_out.1) - q_in.0 * g(c_in.0) - q_in.1 * g(c_in.1);
+    2.0 * GAS_CONSTANT * temperature_k * dg / q_out.0
+}
+
 /// Capital recovery factor i (1+i)^n / ((1+i)^n - 1) for discount rate i per year over n
 /// years (1/n at i = 0): the annuity that repays one unit of capital.
 pub fn capital_recovery_factor(rate: f64, years: f64) -> f64 {

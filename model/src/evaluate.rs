@@ -5,7 +5,9 @@ use crate::cell::{Cell, Guess};
 use crate::channel::{integrate, outer_search, ChannelResult, End, Shot, Stats, Streams};
 use crate::constants::FARADAY;
 use crate::design::{Design, Drive, FlowArrangement, LengthMode, Options, PatternSide};
-use crate::energy::{capital_recovery_factor, levelised_cost, minimum_work_streams, J_PER_KWH};
+use crate::energy::{
+    capital_recovery_factor, levelised_cost, minimum_work_flows, minimum_work_streams, J_PER_KWH,
+};
 use crate::hydraulics::{channel_flow, pumping_power};
 use crate::numerics::secant_then_brent;
 use crate::output::*;
@@ -120,7 +122,17 @@ fn run_drive(
             // the drive.
             let w = d.channel.width_m;
             let target = cell_current_a;
-            let e_in = (2.0 * cell.xi0 * cell.vt * (st.c_c_in / st.c_d_in).ln()).max(0.0);
+            // The membrane potential at the inlet (no current below it). Salt diffusing
+            // back into the diluate and water leaving it can lower the potential downstream,
+            // where current then flows below the inlet's potential: the bracket starts at 0.
+            let ph = &d.membranes.physics;
+            let e_in = if ph.salt_back_diffusion || ph.water_transport {
+                0.0
+            } else {
+                let dd = cell.sh_d.hydraulic_diameter_m / cell.sh_d.mean(l);
+                let dc = cell.sh_c.hydraulic_diameter_m / cell.sh_c.mean(l);
+                cell.point(dd, dc, st.c_d_in, st.c_c_in).e_mem.max(0.0)
+            };
             let at = |u: f64| {
                 let r = integrate(cell, st, l, u, end, opts.rel_tol, false, stats)?;
                 Ok((w * r.current_per_width - target, r))
@@ -281,31 +293,45 @@ pub fn evaluate(
     let q_c = ch.concentrate_gap_m * op.concentrate_velocity_m_s * width;
     let current = width * run.current_per_width;
     let c_out = run.c_d_out;
-    let removed = c_f - c_out;
+    // Salt removed per unit diluate inlet flow (the concentration drop when no water crosses
+    // the membranes), and the product flow.
+    let removed = c_f - run.salt_out_mol_m3;
+    let q_d_out = q_d * run.diluate_flow_ratio;
+    let q_c_out = q_c * run.concentrate_flow_ratio;
     let current_efficiency = if current > 0.0 {
         removed * q_d * FARADAY / current
     } else {
         0.0
     };
-    let electrical = u * current / q_d / J_PER_KWH;
+    let electrical = u * current / q_d_out / J_PER_KWH;
     let pumping = (pumping_power(flow_d.pressure_drop_pa, q_d, e.pump_efficiency)
         + pumping_power(flow_c.pressure_drop_pa, q_c, e.pump_efficiency))
-        / q_d
+        / q_d_out
         / J_PER_KWH;
-    let w_min = minimum_work_streams(
-        w.temperature_k,
-        q_d,
-        q_c,
-        c_f,
-        w.concentrate_feed_concentration_mol_m3,
-        c_out,
-        run.c_c_out,
-    ) / J_PER_KWH;
+    let w_min = if d.membranes.physics.water_transport {
+        minimum_work_flows(
+            w.temperature_k,
+            (q_d, q_c),
+            (c_f, w.concentrate_feed_concentration_mol_m3),
+            (q_d_out, q_c_out),
+            (c_out, run.c_c_out),
+        )
+    } else {
+        minimum_work_streams(
+            w.temperature_k,
+            q_d,
+            q_c,
+            c_f,
+            w.concentrate_feed_concentration_mol_m3,
+            c_out,
+            run.c_c_out,
+        )
+    } / J_PER_KWH;
     let specific = electrical + pumping;
 
     // Economics: one cell pair has one CEM and one AEM of area L W.
     let area_cell = l * width;
-    let product_m3_day = q_d * 86_400.0;
+    let product_m3_day = q_d_out * 86_400.0;
     let area_per_capacity = 2.0 * area_cell / product_m3_day;
     let patterned_membranes = match m.pattern_side {
         _ if m.open_fraction >= 1.0 => 0.0,
@@ -337,6 +363,7 @@ pub fn evaluate(
         max_water_splitting: run.max_water_splitting,
         outlet_mol_m3: c_out,
         concentrate_outlet_mol_m3: run.c_c_out,
+        diluate_flow_ratio: run.diluate_flow_ratio,
     };
     let warnings = warnings(d, k, &observed);
     let wavelength = run.wavelength_mean;
@@ -383,11 +410,13 @@ pub fn evaluate(
         performance: PerformanceOut {
             outlet_concentration_mol_m3: c_out,
             concentrate_outlet_concentration_mol_m3: run.c_c_out,
-            water_recovery: q_d / (q_d + q_c),
-            salt_removal_fraction: removed / c_f,
+            water_recovery: q_d_out / (q_d + q_c),
+            salt_removal_fraction: (c_f - c_out) / c_f,
             mean_current_density_A_m2: run.current_per_width / l,
             cell_current_A: current,
             diluate_flow_m3_s: q_d,
+            diluate_outlet_flow_m3_s: q_d_out,
+            concentrate_outlet_flow_m3_s: q_c_out,
             current_efficiency,
             electrical_energy_kWh_m3: electrical,
             pumping_energy_kWh_m3: pumping,
@@ -406,6 +435,7 @@ pub fn evaluate(
             levelised_cost_per_m3: lcow,
             plant_membrane_area_m2: area_per_capacity * e.plant_capacity_m3_day,
         },
+        membranes: membranes_out(&cell, d, &run),
         warnings,
         numerics: NumericsOut {
             integration_steps: run.steps,
@@ -414,4 +444,49 @@ pub fn evaluate(
         },
         profiles: run.profiles,
     })
+}
+
+/// Each membrane's transport number and area resistance at the diluate inlet and outlet (the
+/// concentrate there: its inlet and outlet for co-current flow, the other way round for
+/// counter-current flow).
+fn membranes_out(cell: &Cell, d: &Design, run: &ChannelResult) -> MembranesOut {
+    let w = &d.water;
+    let ph = &d.membranes.physics;
+    let c_d = [w.feed_concentration_mol_m3, run.c_d_out];
+    let c_c = if d.operation.flow == FlowArrangement::CounterCurrent {
+        [run.c_c_out, w.concentrate_feed_concentration_mol_m3]
+    } else {
+        [w.concentrate_feed_concentration_mol_m3, run.c_c_out]
+    };
+    let one = |m: &crate::membrane::Membrane, t_given: f64| {
+        let t = |j: usize| {
+            if ph.donnan {
+                m.transport_number(c_d[j], c_c[j])
+            } else {
+                t_given
+            }
+        };
+        let r = |j: usize| {
+            if ph.concentration_dependent_resistance {
+                m.area_resistance(
+                    cell.kappa_ref,
+                    cell.cond.conductivity(c_d[j].max(1e-12)),
+                    cell.cond.conductivity(c_c[j].max(1e-12)),
+                )
+            } else {
+                m.area_resistance_ref_ohm_m2
+            }
+        };
+        MembraneOut {
+            fixed_charge_mol_m3: m.fixed_charge_mol_m3.is_finite().then_some(m.fixed_charge_mol_m3),
+            transport_number_inlet: t(0),
+            transport_number_outlet: t(1),
+            area_resistance_inlet_Ohm_m2: r(0),
+            area_resistance_outlet_Ohm_m2: r(1),
+        }
+    };
+    MembranesOut {
+        cem: one(&cell.mem_cem, d.membranes.cem_transport_number),
+        aem: one(&cell.mem_aem, d.membranes.aem_transport_number),
+    }
 }

@@ -21,6 +21,7 @@ pub mod energy;
 mod evaluate;
 pub mod hydraulics;
 pub mod interface;
+pub mod membrane;
 pub mod numerics;
 pub mod output;
 pub mod plant;

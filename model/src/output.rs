@@ -94,7 +94,8 @@ pub struct PerformanceOut {
     pub outlet_concentration_mol_m3: f64,
     /// mol/m^3.
     pub concentrate_outlet_concentration_mol_m3: f64,
-    /// Diluate flow / (diluate + concentrate flow).
+    /// Diluate outlet (product) flow / (diluate + concentrate inlet flow): water moved into
+    /// the concentrate by osmosis and electro-osmosis lowers it.
     pub water_recovery: f64,
     /// 1 - c_out / c_in.
     pub salt_removal_fraction: f64,
@@ -102,8 +103,12 @@ pub struct PerformanceOut {
     pub mean_current_density_A_m2: f64,
     /// A, one cell pair of the given width.
     pub cell_current_A: f64,
-    /// m^3/s, one cell pair.
+    /// Diluate inlet flow, m^3/s, one cell pair.
     pub diluate_flow_m3_s: f64,
+    /// Diluate outlet (product) flow, m^3/s, one cell pair.
+    pub diluate_outlet_flow_m3_s: f64,
+    /// Concentrate outlet flow, m^3/s, one cell pair.
+    pub concentrate_outlet_flow_m3_s: f64,
     /// Salt removed / (current / F).
     pub current_efficiency: f64,
     /// kWh per m^3 of product.
@@ -124,6 +129,33 @@ pub struct PerformanceOut {
     pub max_cem_layer_voltage_thermal: f64,
     /// Largest AEM diffusion-layer voltage along the channel, thermal units.
     pub max_aem_layer_voltage_thermal: f64,
+}
+
+/// One membrane's state at the two ends of the diluate channel (the membrane material itself:
+/// a patterned membrane conducts through its open share, which divides this resistance by the
+/// open fraction).
+#[derive(Debug, Clone, PartialEq, Default, Serialize, Deserialize)]
+pub struct MembraneOut {
+    /// Effective fixed charge (Donnan model), mol per m^3 of sorbed water; None for an ideal
+    /// membrane (transport number 1).
+    pub fixed_charge_mol_m3: Option<f64>,
+    /// Effective counter-ion transport number at the diluate inlet (mean of the two faces), -.
+    pub transport_number_inlet: f64,
+    /// The same at the diluate outlet, -.
+    pub transport_number_outlet: f64,
+    /// Area resistance at the diluate inlet, Ohm m^2.
+    pub area_resistance_inlet_Ohm_m2: f64,
+    /// Area resistance at the diluate outlet, Ohm m^2.
+    pub area_resistance_outlet_Ohm_m2: f64,
+}
+
+/// Both membranes.
+#[derive(Debug, Clone, PartialEq, Default, Serialize, Deserialize)]
+pub struct MembranesOut {
+    /// Cation-exchange membrane.
+    pub cem: MembraneOut,
+    /// Anion-exchange membrane.
+    pub aem: MembraneOut,
 }
 
 /// Economics (beyond the JSON schema's required fields).
@@ -202,6 +234,9 @@ pub struct Evaluation {
     pub performance: PerformanceOut,
     /// Economics.
     pub economics: EconomicsOut,
+    /// The membranes at the diluate inlet and outlet.
+    #[serde(default)]
+    pub membranes: MembranesOut,
     /// Validity warnings.
     pub warnings: Vec<Warning>,
     /// Integration statistics.

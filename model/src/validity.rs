@@ -227,6 +227,33 @@ pub fn check_design(d: &Design, o: &Options) -> Result<(), ModelError> {
         m.open_fraction >= 0.01 && m.open_fraction <= 1.0,
         "0.01 to 1 (1 = unpatterned)",
     )?;
+    for (prefix, mat) in [("cem", &m.physics.cem), ("aem", &m.physics.aem)] {
+        let name = |field: &'static str, cem: &'static str| if prefix == "cem" { cem } else { field };
+        input(
+            name("aem_solution_resistance_share", "cem_solution_resistance_share"),
+            mat.solution_resistance_share,
+            (0.0..=1.0).contains(&mat.solution_resistance_share),
+            "0 to 1",
+        )?;
+        input(
+            name("aem_salt_permeance_m_s", "cem_salt_permeance_m_s"),
+            mat.salt_permeance_m_s,
+            (0.0..=1e-4).contains(&mat.salt_permeance_m_s),
+            "0 to 1e-4 m/s",
+        )?;
+        input(
+            name("aem_water_permeability_m_s_pa", "cem_water_permeability_m_s_pa"),
+            mat.water_permeability_m_s_pa,
+            (0.0..=1e-10).contains(&mat.water_permeability_m_s_pa),
+            "0 to 1e-10 m/(s Pa)",
+        )?;
+        input(
+            name("aem_water_transport_number", "cem_water_transport_number"),
+            mat.water_transport_number,
+            (0.0..=50.0).contains(&mat.water_transport_number),
+            "0 to 50 mol water per faraday",
+        )?;
+    }
     let op = &d.operation;
     input(
         "velocity_m_s",
@@ -353,7 +380,12 @@ pub struct Observed {
     pub outlet_mol_m3: f64,
     /// Concentrate outlet, mol/m^3.
     pub concentrate_outlet_mol_m3: f64,
+    /// Diluate outlet flow / inlet flow, - (1 without water transport).
+    pub diluate_flow_ratio: f64,
 }
+
+/// Share of the diluate's water lost to the concentrate above which a warning is given.
+pub const WATER_LOSS_WARN: f64 = 0.1;
 
 fn warn(out: &mut Vec<Warning>, quantity: &str, value: f64, bound: f64, message: String) {
     out.push(Warning {
@@ -448,6 +480,10 @@ pub fn warnings(d: &Design, k: &crate::RomConstants, o: &Observed) -> Vec<Warnin
     }
     if o.outlet_mol_m3 < lo && o.outlet_mol_m3 >= 0.0 {
         warn(&mut w, "outlet_concentration_mol_m3", o.outlet_mol_m3, lo, format!("outlet concentration {:.3} mol/m^3 is below the property data range ({lo} mol/m^3)", o.outlet_mol_m3));
+    }
+    let lost = 1.0 - o.diluate_flow_ratio;
+    if lost > WATER_LOSS_WARN {
+        warn(&mut w, "diluate_water_loss", lost, WATER_LOSS_WARN, format!("{:.0} % of the diluate's water crosses into the concentrate (osmosis and electro-osmosis): the water-transport constants are from memory, check them against the membrane supplier's data", 100.0 * lost));
     }
     let t = d.water.temperature_k;
     let (tlo, thi) = TEMPERATURE_RANGE_K;

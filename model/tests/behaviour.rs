@@ -331,14 +331,18 @@ fn counter_current_streams_balance_each_other() {
         d.operation.flow = FlowArrangement::CounterCurrent;
         let e = evaluate(&d, &k, &Options::default()).unwrap();
         let p = &e.performance;
-        let lost = (d.water.feed_concentration_mol_m3 - p.outlet_concentration_mol_m3)
-            * d.channel.gap_m
-            * d.operation.velocity_m_s;
-        let gained = (p.concentrate_outlet_concentration_mol_m3
-            - d.water.concentrate_feed_concentration_mol_m3)
-            * d.channel.concentrate_gap_m
-            * d.operation.concentrate_velocity_m_s;
-        let scale = p.outlet_concentration_mol_m3 * d.channel.gap_m * d.operation.velocity_m_s;
+        // Salt flows (water crosses the membranes too, so the outlet flows differ from the
+        // inlet flows), per unit width.
+        let q_d = d.channel.gap_m * d.operation.velocity_m_s;
+        let q_c = d.channel.concentrate_gap_m * d.operation.concentrate_velocity_m_s;
+        let (q_d_out, q_c_out) = (
+            q_d * p.diluate_outlet_flow_m3_s / p.diluate_flow_m3_s,
+            p.concentrate_outlet_flow_m3_s / d.channel.width_m,
+        );
+        let lost = d.water.feed_concentration_mol_m3 * q_d - p.outlet_concentration_mol_m3 * q_d_out;
+        let gained = p.concentrate_outlet_concentration_mol_m3 * q_c_out
+            - d.water.concentrate_feed_concentration_mol_m3 * q_c;
+        let scale = p.outlet_concentration_mol_m3 * q_d;
         assert!(
             (lost - gained).abs()
                 <= 1.1e-2 * 1e-7 * scale.max(1e-13 * lost.abs()) + 1e-15 * lost.abs(),
@@ -368,13 +372,19 @@ fn outlet_converged_at_default_tolerance_on_random_designs() {
     let mut rng = ChaCha8Rng::seed_from_u64(20_261_202);
     let (mut worst, mut lowest_removal_ratio) = (0.0f64, 1.0f64);
     for j in 0..48 {
-        let d = random_design(
+        let mut d = random_design(
             &mut rng,
             Spread {
                 high_removal: j % 4 == 0,
                 ..Spread::default()
             },
         );
+        if j % 4 == 0 {
+            // Salt diffusing back from the concentrate keeps a real diluate from emptying
+            // below about 1e-4 of the feed; the deep-removal designs leave it out so that the
+            // integrator is tested down there (water transport and the rest stay on).
+            d.membranes.physics.salt_back_diffusion = false;
+        }
         let reference = run(&d, 1e-11);
         let outlet = run(&d, Options::default().rel_tol);
         // Relative down to 1e-12 of the feed (absolute below: 1e-18 of the feed). The point

@@ -188,10 +188,19 @@ fn energy_never_below_thermodynamic_minimum() {
         profiles: false,
     };
     for n in 0..10_000 {
-        let d = any_design(&mut rng);
+        let mut d = any_design(&mut rng);
+        // Every other design with ideal membranes: real ones let salt diffuse back and water
+        // cross, which can mix the streams (a negative minimum work) and leave the diluate
+        // saltier than fed at a weak current.
+        let ideal = n % 2 == 1;
+        if ideal {
+            d.membranes.physics = MembranePhysics::ideal();
+        }
         let e = evaluate(&d, &k, &o).unwrap_or_else(|err| panic!("design {n}: {err}: {d:?}"));
         let p = &e.performance;
-        if d.water.concentrate_feed_concentration_mol_m3 >= d.water.feed_concentration_mol_m3 {
+        if ideal
+            && d.water.concentrate_feed_concentration_mol_m3 >= d.water.feed_concentration_mol_m3
+        {
             // Moving salt uphill costs work; with a weaker concentrate feed it may not.
             assert!(p.thermodynamic_minimum_kWh_m3 >= 0.0);
         }
@@ -204,7 +213,7 @@ fn energy_never_below_thermodynamic_minimum() {
         assert!(p.specific_energy_kWh_m3 >= p.thermodynamic_minimum_kWh_m3);
         assert!(
             p.outlet_concentration_mol_m3 >= 0.0
-                && p.outlet_concentration_mol_m3 <= d.water.feed_concentration_mol_m3,
+                && (!ideal || p.outlet_concentration_mol_m3 <= d.water.feed_concentration_mol_m3),
             "design {n}: outlet {}: {d:?}",
             p.outlet_concentration_mol_m3
         );

@@ -3,8 +3,8 @@
 use std::path::Path;
 
 use model::{
-    validity, Channel, Design, Drive, Economics, LengthMode, Membranes, Operation, RomConstants,
-    Salt, Spacer, Water,
+    validity, Channel, Design, Drive, Economics, LengthMode, MembraneMaterial, MembranePhysics,
+    Membranes, Operation, RomConstants, Salt, Spacer, Water,
 };
 use toml_edit::ImDocument;
 
@@ -320,6 +320,7 @@ fn read_membranes(r: &mut Reader, water: &Water) -> Result<Membranes, CliError> 
     let side = r.choose("membranes", "pattern_side", &keys::PATTERN_SIDES)?;
     let pitch = r.float_req("membranes", "pitch_um")?;
     let open = r.float_req("membranes", "open_fraction")?;
+    let physics = read_membrane_physics(r)?;
     Ok(Membranes {
         cem_transport_number: cem_t,
         aem_transport_number: aem_t,
@@ -328,6 +329,42 @@ fn read_membranes(r: &mut Reader, water: &Water) -> Result<Membranes, CliError> 
         pitch_m: pitch * 1e-6,
         open_fraction: open,
         pattern_side: side,
+        physics,
+    })
+}
+
+/// The effects of real membranes and the material data (every key has a default).
+fn read_membrane_physics(r: &mut Reader) -> Result<MembranePhysics, CliError> {
+    let effects = r.word_list("membranes", "effects")?;
+    if effects.len() > 1 && effects.iter().any(|e| e == "none") {
+        return Err(r.err(
+            "membranes",
+            "effects",
+            "\"none\" is listed with other effects",
+            "[\"none\"] alone, or any of the other effects",
+        ));
+    }
+    let has = |w: &str| effects.iter().any(|e| e == w);
+    let mut material = |side: &str| -> Result<MembraneMaterial, CliError> {
+        let f = |r: &mut Reader, key: &str| -> Result<f64, CliError> {
+            r.float_req("membranes", &format!("{side}_{key}"))
+        };
+        Ok(MembraneMaterial {
+            solution_resistance_share: f(r, "resistance_solution_share")?,
+            salt_permeance_m_s: f(r, "salt_permeance_m_s")?,
+            water_permeability_m_s_pa: f(r, "water_permeability_m_s_Pa")?,
+            water_transport_number: f(r, "electroosmotic_water_mol_F")?,
+        })
+    };
+    let cem = material("cem")?;
+    let aem = material("aem")?;
+    Ok(MembranePhysics {
+        donnan: has("donnan"),
+        concentration_dependent_resistance: has("concentration_resistance"),
+        salt_back_diffusion: has("salt_back_diffusion"),
+        water_transport: has("water_transport"),
+        cem,
+        aem,
     })
 }
 

@@ -218,6 +218,14 @@ pub const PATTERN_SIDES: Choices<PatternSide> = Choices::new(
     &["cem", "aem", "both"],
     &[PatternSide::Cem, PatternSide::Aem, PatternSide::Both],
 );
+/// Effects of real membranes (`membranes.effects`); "none" alone gives ideal membranes.
+pub const MEMBRANE_EFFECTS: &[&str] = &[
+    "donnan",
+    "concentration_resistance",
+    "salt_back_diffusion",
+    "water_transport",
+    "none",
+];
 /// Flow arrangements.
 pub const FLOWS: Choices<FlowArrangement> = Choices::new(
     &["co_current", "counter_current"],
@@ -347,11 +355,20 @@ pub const KEYS: &[KeySpec] = &[
     k("channel", "spacer_shadow_factor", Float, "-", 1.0, Derived("1.0 with a spacer"), closed(1.0, 10.0), None, "Spacer: factor by which the spacer raises the solution resistance."),
     k("channel", "spacer_sherwood_factor", Float, "-", 1.0, Derived("1.0 with multiplier"), pos(50.0), None, "Multiplier spacer: factor on the Sherwood number."),
     k("channel", "spacer_friction_factor", Float, "-", 1.0, Derived("1.0 with multiplier"), pos(1000.0), None, "Multiplier spacer: factor on the pressure drop."),
-    k("membranes", "cem_transport_number", Float, "-", 1.0, Required, Some(Range { lo: 0.5, hi: 1.0, lo_open: false, hi_open: false }), closed(0.85, 1.0), "Counter-ion transport number in the cation-exchange membrane."),
-    k("membranes", "aem_transport_number", Float, "-", 1.0, Required, Some(Range { lo: 0.5, hi: 1.0, lo_open: false, hi_open: false }), closed(0.85, 1.0), "Counter-ion transport number in the anion-exchange membrane."),
-    k("membranes", "cem_area_resistance_ohm_cm2", Float, "Ohm cm2", 1e-4, Required, pos(1000.0), closed(0.5, 30.0), "Area resistance of the unpatterned CEM."),
-    k("membranes", "aem_area_resistance_ohm_cm2", Float, "Ohm cm2", 1e-4, Required, pos(1000.0), closed(0.5, 30.0), "Area resistance of the AEM."),
+    k("membranes", "cem_transport_number", Float, "-", 1.0, Required, Some(Range { lo: 0.5, hi: 1.0, lo_open: false, hi_open: false }), closed(0.85, 1.0), "Counter-ion transport number in the cation-exchange membrane with both faces at the diluate feed concentration (with the \"donnan\" effect it sets the membrane's effective fixed charge, and falls as the concentrate strengthens)."),
+    k("membranes", "aem_transport_number", Float, "-", 1.0, Required, Some(Range { lo: 0.5, hi: 1.0, lo_open: false, hi_open: false }), closed(0.85, 1.0), "Counter-ion transport number in the anion-exchange membrane, as for the CEM."),
+    k("membranes", "cem_area_resistance_ohm_cm2", Float, "Ohm cm2", 1e-4, Required, pos(1000.0), closed(0.5, 30.0), "Area resistance of the unpatterned CEM in 0.5 M NaCl (the datasheet condition; with the \"concentration_resistance\" effect it rises in dilute solution)."),
+    k("membranes", "aem_area_resistance_ohm_cm2", Float, "Ohm cm2", 1e-4, Required, pos(1000.0), closed(0.5, 30.0), "Area resistance of the AEM in 0.5 M NaCl, as for the CEM."),
     k("membranes", "pattern_side", Choice(PATTERN_SIDES.words()), "-", 1.0, Value("\"cem\""), None, None, "Which membrane carries the inert stripes on its diluate side."),
+    k("membranes", "effects", List(MEMBRANE_EFFECTS), "-", 1.0, Value("[\"donnan\", \"concentration_resistance\", \"salt_back_diffusion\", \"water_transport\"]"), None, None, "Effects of real membranes the model includes (docs/model.md, membranes): Donnan (Teorell-Meyer-Sievers) transport numbers and potential, an area resistance that rises in dilute solution, salt back-diffusion, water transport by osmosis and electro-osmosis. [\"none\"] gives ideal membranes."),
+    k("membranes", "cem_resistance_solution_share", Float, "-", 1.0, Value("0.08"), closed(0.0, 1.0), closed(0.02, 0.3), "Share of the CEM's 0.5 M area resistance that scales with the external solution's resistance (two resistors in series, Galama et al. 2014; generic grade from memory)."),
+    k("membranes", "aem_resistance_solution_share", Float, "-", 1.0, Value("0.08"), closed(0.0, 1.0), closed(0.02, 0.3), "The same for the AEM."),
+    k("membranes", "cem_salt_permeance_m_s", Float, "m/s", 1.0, Value("1e-7"), closed(0.0, 1e-4), closed(1e-8, 1e-6), "Co-ion permeance of the CEM (membrane-phase co-ion diffusivity over thickness) for salt back-diffusion (generic grade from memory)."),
+    k("membranes", "aem_salt_permeance_m_s", Float, "m/s", 1.0, Value("1e-7"), closed(0.0, 1e-4), closed(1e-8, 1e-6), "The same for the AEM."),
+    k("membranes", "cem_water_permeability_m_s_Pa", Float, "m/(s Pa)", 1.0, Value("2e-14"), closed(0.0, 1e-10), closed(5e-15, 1e-13), "Osmotic water permeability of the CEM (generic grade from memory, low confidence)."),
+    k("membranes", "aem_water_permeability_m_s_Pa", Float, "m/(s Pa)", 1.0, Value("2e-14"), closed(0.0, 1e-10), closed(5e-15, 1e-13), "The same for the AEM."),
+    k("membranes", "cem_electroosmotic_water_mol_F", Float, "mol/F", 1.0, Value("5.0"), closed(0.0, 50.0), closed(3.0, 10.0), "Electro-osmotic water transport through the CEM, mol of water per faraday (5-10 in NaCl, Strathmann 2004, from memory)."),
+    k("membranes", "aem_electroosmotic_water_mol_F", Float, "mol/F", 1.0, Value("5.0"), closed(0.0, 50.0), closed(3.0, 10.0), "The same for the AEM."),
     k("membranes", "pitch_um", Float, "um", 1e-6, Required, closed(0.1, 1e5), closed(20.0, 5000.0), "Stripe period along the flow."),
     k("membranes", "open_fraction", Float, "-", 1.0, Required, closed(0.01, 1.0), closed(0.1, 1.0), "Conducting share of each period (1 = unpatterned)."),
     k("operation", "velocity_cm_s", Float, "cm/s", 1e-2, Required, closed(0.01, 200.0), closed(0.2, 30.0), "Mean diluate velocity."),
