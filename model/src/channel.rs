@@ -824,7 +824,7 @@ fn integrate_once(
         max_v_cem = max_v_cem.max(sol_acc.v_cem);
         max_v_aem = max_v_aem.max(sol_acc.v_aem);
         max_ws = max_ws.max(sol_acc.ws_cem).max(sol_acc.ws_aem);
-        if water && !(y[6] >= DILUATE_FLOW_FLOOR) {
+        if water && (y[6] < DILUATE_FLOW_FLOOR || y[6].is_nan()) {
             return Err(ModelError::Numerical(format!(
                 "water transport takes more than {:.0} % of the diluate flow (osmosis from the \
                  concentrate, electro-osmosis): outside the model",

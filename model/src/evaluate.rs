@@ -478,7 +478,10 @@ fn membranes_out(cell: &Cell, d: &Design, run: &ChannelResult) -> MembranesOut {
             }
         };
         MembraneOut {
-            fixed_charge_mol_m3: m.fixed_charge_mol_m3.is_finite().then_some(m.fixed_charge_mol_m3),
+            fixed_charge_mol_m3: m
+                .fixed_charge_mol_m3
+                .is_finite()
+                .then_some(m.fixed_charge_mol_m3),
             transport_number_inlet: t(0),
             transport_number_outlet: t(1),
             area_resistance_inlet_Ohm_m2: r(0),

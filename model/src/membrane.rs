@@ -401,7 +401,12 @@ mod tests {
 
     #[test]
     fn donnan_product_and_electroneutrality() {
-        for (x, c) in [(2000.0, 1.0), (2000.0, 500.0), (10.0, 1000.0), (300.0, 41.0)] {
+        for (x, c) in [
+            (2000.0, 1.0),
+            (2000.0, 500.0),
+            (10.0, 1000.0),
+            (300.0, 41.0),
+        ] {
             let (ct, co) = donnan(x, c);
             assert!((ct * co - c * c).abs() <= 1e-12 * c * c);
             assert!((ct - co - x).abs() <= 1e-12 * ct);

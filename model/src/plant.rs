@@ -6,7 +6,11 @@
 //! of the first stage's design). Each stage passes the whole diluate flow Q_p through
 //! Q_p / q_d,i cell pairs in parallel (q_d,i its cell pair's diluate flow), grouped in stacks of
 //! N_i cell pairs: ceil(Q_p / (N_i q_d,i)) stacks. Its concentrate flow is Q_c,i = Q_p q_c,i / q_d,i.
-//! No water crosses the membranes in this model, so the diluate flow is the same in every stage.
+//! The plant's flows assume that no water crosses the membranes, so its stages are evaluated
+//! with the cell-pair model's water transport (osmosis, electro-osmosis) switched off and the
+//! diluate flow is the same in every stage; the other effects of real membranes stay as the
+//! stage designs have them. (Carrying each stage's water loss into the next stage's flow is
+//! not done yet.)
 //!
 //! **Once-through concentrate.** Every stage's concentrate enters at the first stage's
 //! concentrate feed and leaves to drain: water recovery r = Q_p / (Q_p + sum Q_c,i).
@@ -233,6 +237,8 @@ fn run_stages(
         if let Some(c) = concentrate_in {
             d.water.concentrate_feed_concentration_mol_m3 = c;
         }
+        // The plant's flow bookkeeping has no water crossing the membranes (module docs).
+        d.membranes.physics.water_transport = false;
         out.push(evaluate(&d, k, o)?);
     }
     Ok(out)
@@ -525,7 +531,9 @@ mod tests {
 
     #[test]
     fn one_stage_of_one_cell_pair_is_the_cell_pair_model_exactly() {
-        let d = Design::demo();
+        // The plant evaluates its stages without water transport (module docs).
+        let mut d = Design::demo();
+        d.membranes.physics.water_transport = false;
         let (k, o) = (RomConstants::default(), Options::default());
         let cell = evaluate(&d, &k, &o).unwrap();
         let p = evaluate_plant(&Plant::single(d), &k, &o).unwrap();

@@ -228,9 +228,13 @@ pub fn check_design(d: &Design, o: &Options) -> Result<(), ModelError> {
         "0.01 to 1 (1 = unpatterned)",
     )?;
     for (prefix, mat) in [("cem", &m.physics.cem), ("aem", &m.physics.aem)] {
-        let name = |field: &'static str, cem: &'static str| if prefix == "cem" { cem } else { field };
+        let name =
+            |field: &'static str, cem: &'static str| if prefix == "cem" { cem } else { field };
         input(
-            name("aem_solution_resistance_share", "cem_solution_resistance_share"),
+            name(
+                "aem_solution_resistance_share",
+                "cem_solution_resistance_share",
+            ),
             mat.solution_resistance_share,
             (0.0..=1.0).contains(&mat.solution_resistance_share),
             "0 to 1",
@@ -242,7 +246,10 @@ pub fn check_design(d: &Design, o: &Options) -> Result<(), ModelError> {
             "0 to 1e-4 m/s",
         )?;
         input(
-            name("aem_water_permeability_m_s_pa", "cem_water_permeability_m_s_pa"),
+            name(
+                "aem_water_permeability_m_s_pa",
+                "cem_water_permeability_m_s_pa",
+            ),
             mat.water_permeability_m_s_pa,
             (0.0..=1e-10).contains(&mat.water_permeability_m_s_pa),
             "0 to 1e-10 m/(s Pa)",

@@ -339,7 +339,8 @@ fn counter_current_streams_balance_each_other() {
             q_d * p.diluate_outlet_flow_m3_s / p.diluate_flow_m3_s,
             p.concentrate_outlet_flow_m3_s / d.channel.width_m,
         );
-        let lost = d.water.feed_concentration_mol_m3 * q_d - p.outlet_concentration_mol_m3 * q_d_out;
+        let lost =
+            d.water.feed_concentration_mol_m3 * q_d - p.outlet_concentration_mol_m3 * q_d_out;
         let gained = p.concentrate_outlet_concentration_mol_m3 * q_c_out
             - d.water.concentrate_feed_concentration_mol_m3 * q_c;
         let scale = p.outlet_concentration_mol_m3 * q_d;

@@ -27,10 +27,7 @@ fn ideal_membranes_reproduce_revision_6_bit_for_bit() {
             match value {
                 serde_json::Value::Object(fields) => {
                     for (key, v) in fields {
-                        assert_eq!(
-                            &new[section][key], v,
-                            "design {j}: {section}.{key} moved"
-                        );
+                        assert_eq!(&new[section][key], v, "design {j}: {section}.{key} moved");
                     }
                 }
                 v => assert_eq!(&new[section], v, "design {j}: {section} moved"),

@@ -363,6 +363,30 @@ pub fn design_sheet(input: &SheetInput) -> String {
 
     mass_transfer_rows(&mut s, &e.transfer);
 
+    s.push_str("\nMembranes (diluate inlet -> outlet)\n");
+    for (name, m) in [("CEM", &e.membranes.cem), ("AEM", &e.membranes.aem)] {
+        row(
+            &mut s,
+            &format!("{name} transport number"),
+            format!(
+                "{} -> {}",
+                sig(m.transport_number_inlet, 4),
+                sig(m.transport_number_outlet, 4)
+            ),
+            "-",
+        );
+        row(
+            &mut s,
+            &format!("{name} area resistance"),
+            format!(
+                "{} -> {}",
+                sig(m.area_resistance_inlet_Ohm_m2 * 1e4, 3),
+                sig(m.area_resistance_outlet_Ohm_m2 * 1e4, 3)
+            ),
+            "Ohm cm2",
+        );
+    }
+
     let f = &e.performance;
     s.push_str("\nPerformance\n");
     row(
@@ -408,6 +432,18 @@ pub fn design_sheet(input: &SheetInput) -> String {
         &mut s,
         "diluate flow (one cell pair)",
         sig(f.diluate_flow_m3_s * 3.6e6, 4),
+        "L/h",
+    );
+    row(
+        &mut s,
+        "product flow (one cell pair)",
+        sig(f.diluate_outlet_flow_m3_s * 3.6e6, 4),
+        "L/h",
+    );
+    row(
+        &mut s,
+        "concentrate outlet flow",
+        sig(f.concentrate_outlet_flow_m3_s * 3.6e6, 4),
         "L/h",
     );
     row(

@@ -3,6 +3,7 @@
 
 mod exact_refs;
 mod handoff_fit;
+mod membrane_refs;
 mod model_refs;
 mod optimizer_refs;
 mod python_refs;
