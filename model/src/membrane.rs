@@ -60,13 +60,13 @@
 //! they differ much (within 1 % once they differ tenfold), either one when they are equal.
 //! It rises steeply (as 1/c) in dilute solution, as Dlugolecki et al., J. Membr. Sci. 346
 //! (2009) 163 report below about 0.01-0.05 M. phi = 0.08 (range 0.02-0.3) puts R(0.01 M)
-//! at about 4 R_ref (from memory of the measured curves; low confidence).
+//! at about 4 R_ref (from memory of the measured curves; low confidence; prior 0.02-0.32).
 //!
 //! # Salt back-diffusion
 //! The salt that diffuses from the concentrate back into the diluate is limited by the co-ion
 //! (trace in the membrane when c << X; the counter-ion follows it to keep electroneutrality):
 //! J_s = P (c_co(c_c) - c_co(c_d)), mol/(m^2 s), with the Donnan co-ion concentrations of the
-//! faces and the co-ion permeance P = D_co,membrane / thickness (m/s). P = 1e-7 m/s (range
+//! faces and the co-ion permeance P = D_co,membrane / thickness (m/s). P = 1e-7 m/s (prior
 //! 1e-8 to 1e-6; from memory: membrane-phase diffusivities are one to two decades below the
 //! solution's, membranes are 0.1-0.2 mm thick). It grows as c^2 while c << X.
 //!
@@ -77,13 +77,13 @@
 //! NaCl, Strathmann 2004, from memory), V_w the molar volume of water (M_w / rho_w) and L_p
 //! the osmotic water permeability, m/(s Pa), with the ideal van 't Hoff osmotic pressure
 //! 2 R T c (about 7 % high for NaCl at 0.1 M, where the osmotic coefficient is 0.93).
-//! Defaults: t_w = 5 per membrane (range 3-10), L_p = 2e-14 m/(s Pa) (range 5e-15 to 1e-13;
-//! from memory, low confidence). Both move water out of the diluate, so the product flow
+//! Defaults: t_w = 6 per membrane (prior 3-9), L_p = 2e-14 m/(s Pa) (prior 5e-15 to 8e-14;
+//! from memory, low confidence). [`priors`] gives every material constant's prior range. Both move water out of the diluate, so the product flow
 //! falls along the channel and its concentration falls less than its salt flow.
 
 use serde::{Deserialize, Serialize};
 
-use crate::constants::GAS_CONSTANT;
+use crate::constants::{Distribution, Prior, GAS_CONSTANT};
 
 /// Reference concentration of the datasheet area resistance: 0.5 M NaCl, mol/m^3 (common
 /// practice).
@@ -114,7 +114,7 @@ impl MembraneMaterial {
             solution_resistance_share: 0.08,
             salt_permeance_m_s: 1e-7,
             water_permeability_m_s_pa: 2e-14,
-            water_transport_number: 5.0,
+            water_transport_number: 6.0,
         }
     }
 }
@@ -125,38 +125,67 @@ impl Default for MembraneMaterial {
     }
 }
 
-/// A prior range of an uncertain material constant: (key, low, high, distribution, source).
-/// The centre is the generic default; the uncertainty work reads these.
-pub const MATERIAL_PRIORS: [(&str, f64, f64, &str, &str); 4] = [
-    (
-        "solution_resistance_share",
-        0.02,
-        0.3,
-        "uniform",
-        "from memory: measured R(c) curves of homogeneous grades rise 2-10 times from 0.5 M to 0.01 M (Dlugolecki et al. 2009; Galama et al. 2014)",
-    ),
-    (
-        "salt_permeance_m_s",
-        1e-8,
-        1e-6,
-        "log-uniform",
-        "from memory: membrane-phase co-ion diffusivities 1e-12 to 1e-10 m^2/s over 0.1-0.2 mm",
-    ),
-    (
-        "water_permeability_m_s_pa",
-        5e-15,
-        1e-13,
-        "log-uniform",
-        "from memory, low confidence: osmotic water permeabilities of ED membranes",
-    ),
-    (
-        "water_transport_number",
-        3.0,
-        10.0,
-        "uniform",
-        "Strathmann 2004 (from memory): 5-10 mol water per faraday in NaCl",
-    ),
-];
+/// The prior of every uncertain membrane material constant (the same for the CEM and the
+/// AEM), in the form of [`crate::constants::priors`]: keys are those of a study's
+/// `[membranes]` section (`cem_...` and `aem_...`), units those of the key, centred on the
+/// generic grade's default (log-uniform priors at their geometric centre, uniform at their
+/// arithmetic centre).
+pub fn priors() -> Vec<Prior> {
+    use Distribution::*;
+    let rows: [(&str, &str, Distribution, &str, &str); 4] = [
+        (
+            "resistance_solution_share",
+            "-",
+            LogUniform { lower: 0.02, upper: 0.32 },
+            "generic grade (this crate): R(0.01 M) about 4 R(0.5 M)",
+            "from memory: measured R(c) curves of homogeneous grades rise 2-10 times from 0.5 M to 0.01 M (Dlugolecki et al. 2009; Galama et al. 2014); a factor 4 either way",
+        ),
+        (
+            "salt_permeance_m_s",
+            "m/s",
+            LogUniform { lower: 1e-8, upper: 1e-6 },
+            "generic grade (this crate), from memory",
+            "from memory: membrane-phase co-ion diffusivities of 1e-12 to 1e-10 m^2/s over 0.1-0.2 mm; a decade either way",
+        ),
+        (
+            "water_permeability_m_s_Pa",
+            "m/(s Pa)",
+            LogUniform { lower: 5e-15, upper: 8e-14 },
+            "generic grade (this crate), from memory, low confidence",
+            "from memory, low confidence: osmotic water permeabilities of ED membranes; a factor 4 either way",
+        ),
+        (
+            "electroosmotic_water_mol_F",
+            "mol/F",
+            Uniform { lower: 3.0, upper: 9.0 },
+            "generic grade (this crate)",
+            "Strathmann, Ion-Exchange Membrane Separation Processes, 2004 (from memory): 5-10 mol water per faraday in NaCl; widened down to 3 for tight grades",
+        ),
+    ];
+    let mut out = Vec::new();
+    for side in ["cem", "aem"] {
+        for (key, unit, distribution, centre_source, range_source) in rows {
+            let key: &'static str = match (side, key) {
+                ("cem", "resistance_solution_share") => "cem_resistance_solution_share",
+                ("cem", "salt_permeance_m_s") => "cem_salt_permeance_m_s",
+                ("cem", "water_permeability_m_s_Pa") => "cem_water_permeability_m_s_Pa",
+                ("cem", _) => "cem_electroosmotic_water_mol_F",
+                (_, "resistance_solution_share") => "aem_resistance_solution_share",
+                (_, "salt_permeance_m_s") => "aem_salt_permeance_m_s",
+                (_, "water_permeability_m_s_Pa") => "aem_water_permeability_m_s_Pa",
+                _ => "aem_electroosmotic_water_mol_F",
+            };
+            out.push(Prior {
+                key,
+                unit,
+                distribution,
+                centre_source,
+                range_source,
+            });
+        }
+    }
+    out
+}
 
 /// Donnan equilibrium of a membrane of fixed charge `x` (mol/m^3) with a 1:1 salt solution of
 /// concentration `c` (mol/m^3): (counter-ion, co-ion) concentrations inside, mol/m^3.
@@ -423,5 +452,38 @@ mod tests {
             }
         }
         assert!(fixed_charge_for(1.0, 41.0, TP, 1.0 - TP).is_infinite());
+    }
+}
+
+#[cfg(test)]
+mod prior_tests {
+    use super::*;
+
+    #[test]
+    fn every_material_constant_has_a_prior_centred_on_its_default() {
+        let m = MembraneMaterial::generic();
+        let defaults = [
+            ("resistance_solution_share", m.solution_resistance_share),
+            ("salt_permeance_m_s", m.salt_permeance_m_s),
+            ("water_permeability_m_s_Pa", m.water_permeability_m_s_pa),
+            ("electroosmotic_water_mol_F", m.water_transport_number),
+        ];
+        let p = priors();
+        assert_eq!(p.len(), 8);
+        for side in ["cem", "aem"] {
+            for (key, value) in defaults {
+                let full = format!("{side}_{key}");
+                let prior = p.iter().find(|q| q.key == full).unwrap();
+                let centre = match prior.distribution {
+                    Distribution::Uniform { lower, upper } => 0.5 * (lower + upper),
+                    Distribution::LogUniform { lower, upper } => (lower * upper).sqrt(),
+                    Distribution::Normal { mean, .. } => mean,
+                };
+                assert!(
+                    (centre / value - 1.0).abs() < 1e-12,
+                    "{full}: {centre} {value}"
+                );
+            }
+        }
     }
 }
