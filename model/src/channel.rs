@@ -1046,8 +1046,11 @@ pub fn integrate(
                 let x1 = (x0 + g0).clamp(0.0, hi_max);
                 let pts = vec![(x0, g0), (x1, g(x1)?)];
                 let tol = 1e-3 * rel_tol * streams.c_d_in;
+                // Exact on purpose: the first round starts at c_in itself, whose miss is known.
+                #[allow(clippy::float_cmp)]
+                let first_round = x0 == hi;
                 let mut below = |g: &mut dyn FnMut(f64) -> Result<f64, Shot>| {
-                    let (mut x, mut m) = (hi, if x0 == hi { g0 } else { g(hi)? });
+                    let (mut x, mut m) = (hi, if first_round { g0 } else { g(hi)? });
                     while m >= 0.0 && x < hi_max {
                         x = (x + 2.0 * m.max(1e-3 * hi)).min(hi_max);
                         m = g(x)?;

@@ -201,7 +201,10 @@ fn without_current_salt_diffuses_back_and_water_moves_to_the_concentrate() {
     };
     let e = evaluate(&d, &k, &Options::default()).unwrap();
     let p = &e.performance;
-    assert_eq!(p.cell_current_A, 0.0);
+    #[allow(clippy::float_cmp)]
+    // exact on purpose: below the membrane potential the model sets the current to 0
+    let no_current = p.cell_current_A == 0.0;
+    assert!(no_current);
     assert!(p.outlet_concentration_mol_m3 > d.water.feed_concentration_mol_m3);
     assert!(p.diluate_outlet_flow_m3_s < p.diluate_flow_m3_s);
     // Mixing: the minimum work of what happened is negative.
