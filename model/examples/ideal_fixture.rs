@@ -1,5 +1,5 @@
 //! Writes the fixture of `model/tests/ideal_membranes.rs`: seeded random designs and their
-//! evaluations as JSON lines (design, evaluation or error). Run at model revision 6 (before
+//! evaluations as JSON lines (design, evaluation or error). Run at model revision 7 (before
 //! the membrane physics) it recorded what an evaluation with every membrane effect switched
 //! off must reproduce bit for bit: `cargo run -p model --example ideal_fixture > FILE`.
 #[path = "../tests/support/mod.rs"]

@@ -138,7 +138,7 @@ pub struct Membranes {
 /// Which effects of real membranes an evaluation includes ([`crate::membrane`]), each
 /// switchable, and the material data of the two membranes. The default has every effect on,
 /// with a generic homogeneous grade; [`MembranePhysics::ideal`] switches them all off and
-/// gives the ideal-membrane results of model revision 6 bit for bit.
+/// gives the ideal-membrane results of model revision 7 bit for bit.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 pub struct MembranePhysics {
     /// Donnan (Teorell-Meyer-Sievers) transport numbers and membrane potential: the transport
@@ -169,7 +169,7 @@ impl MembranePhysics {
         }
     }
 
-    /// Every effect off: ideal membranes (the model of revision 6).
+    /// Every effect off: ideal membranes (the model of revision 7).
     pub const fn ideal() -> Self {
         MembranePhysics {
             donnan: false,

@@ -39,7 +39,7 @@ pub use output::*;
 /// Revision of the model's numbers: raised whenever a change moves the result of any
 /// evaluation (a law, a constant, the integrator or its tolerances, even at round-off).
 /// Study fingerprints include it, so a run is never resumed with a different model.
-pub const MODEL_REVISION: u32 = 7;
+pub const MODEL_REVISION: u32 = 8;
 
 /// Why an evaluation could not produce a result.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]

@@ -6,7 +6,7 @@
 //! Every relation is per membrane and per unit membrane area; [`crate::cell`] adds the two
 //! membranes of a cell pair and [`crate::channel`] carries the fluxes along the channel.
 //! Each effect can be switched off in [`crate::design::MembranePhysics`]; with all of them
-//! off the model is the ideal-membrane model of model revision 6, bit for bit.
+//! off the model is the ideal-membrane model of model revision 7, bit for bit.
 //!
 //! # Teorell-Meyer-Sievers (TMS)
 //! Teorell, Proc. Soc. Exp. Biol. Med. 33 (1935) 282; Meyer and Sievers, Helv. Chim. Acta 19
