@@ -552,6 +552,72 @@ fn push_profile(p: &mut Profiles, x: f64, c_d: f64, c_c: f64, sol: &PointSolutio
     p.aem_layer_voltage_thermal.push(sol.v_aem);
 }
 
+/// Target mode: when the accepted trial step [s, s + h] carries the product to `target`,
+/// re-step exactly to the crossing; returns the state, derivative and solution there and its s.
+#[allow(clippy::too_many_arguments, clippy::float_cmp)] // a zero slope is exact: no current
+fn locate_target(
+    rhs: &mut Rhs,
+    (s, h, y, k0): (f64, f64, &State, &State),
+    (y_new, k_new): (&State, &State),
+    stages: &mut [State; 7],
+    target: f64,
+    water: bool,
+    rel_tol: f64,
+) -> Option<(State, State, PointSolution, f64)> {
+    // The product reaches the target where the salt flow equals the target times the
+    // diluate flow: z = y0 - target y6 = 0, linear in the state (without water
+    // transport y6 = 1 and the test is on y0 itself).
+    let (z, zt): (fn(&State, f64) -> f64, f64) = if water {
+        (|y, target| y[0] - target * y[6], 0.0)
+    } else {
+        (|y, _| y[0], target)
+    };
+    if z(y_new, target) <= zt {
+        // Locate the crossing on a cubic Hermite interpolant of c_d(s), then re-step
+        // exactly to it and correct with secant steps.
+        let (y0a, y0b, fa, fb) = (
+            z(y, target),
+            z(y_new, target),
+            z(k0, target) * h,
+            z(k_new, target) * h,
+        );
+        let herm = |t: f64| {
+            let t2 = t * t;
+            let t3 = t2 * t;
+            (2.0 * t3 - 3.0 * t2 + 1.0) * y0a
+                + (t3 - 2.0 * t2 + t) * fa
+                + (-2.0 * t3 + 3.0 * t2) * y0b
+                + (t3 - t2) * fb
+        };
+        let mut lo = 0.0;
+        let mut hi = 1.0;
+        for _ in 0..60 {
+            let mid = 0.5 * (lo + hi);
+            if herm(mid) > zt {
+                lo = mid;
+            } else {
+                hi = mid;
+            }
+        }
+        let mut hs = h * 0.5 * (lo + hi);
+        let (mut y_acc, mut k_acc, mut sol_acc) = (*y_new, *k_new, PointSolution::default());
+        for _ in 0..8 {
+            let (yt, kt, _, st) = dp_step(rhs, s, y, k0, hs, stages);
+            y_acc = yt;
+            k_acc = kt;
+            sol_acc = st;
+            let miss = z(&yt, target) - zt;
+            let slope = z(&kt, target);
+            if miss.abs() <= 1e-4 * rel_tol * target || slope == 0.0 {
+                break;
+            }
+            hs = (hs - miss / slope).clamp(1e-3 * h, h);
+        }
+        return Some((y_acc, k_acc, sol_acc, s + hs));
+    }
+    None
+}
+
 /// Integrate one channel at cell-pair voltage `u` with the concentrate at x = 0 given.
 #[allow(clippy::too_many_arguments)]
 fn integrate_once(
@@ -733,55 +799,16 @@ fn integrate_once(
         let mut sol_acc = sol;
         let mut s_acc = s + h;
         if let End::Target(target) = end {
-            // The product reaches the target where the salt flow equals the target times the
-            // diluate flow: z = y0 - target y6 = 0, linear in the state (without water
-            // transport y6 = 1 and the test is on y0 itself).
-            let (z, zt): (fn(&State, f64) -> f64, f64) = if water {
-                (|y, target| y[0] - target * y[6], 0.0)
-            } else {
-                (|y, _| y[0], target)
-            };
-            if z(&y_new, target) <= zt {
-                // Locate the crossing on a cubic Hermite interpolant of c_d(s), then re-step
-                // exactly to it and correct with secant steps.
-                let (y0a, y0b, fa, fb) = (
-                    z(&y, target),
-                    z(&y_new, target),
-                    z(&k0, target) * h,
-                    z(&k_new, target) * h,
-                );
-                let herm = |t: f64| {
-                    let t2 = t * t;
-                    let t3 = t2 * t;
-                    (2.0 * t3 - 3.0 * t2 + 1.0) * y0a
-                        + (t3 - 2.0 * t2 + t) * fa
-                        + (-2.0 * t3 + 3.0 * t2) * y0b
-                        + (t3 - t2) * fb
-                };
-                let mut lo = 0.0;
-                let mut hi = 1.0;
-                for _ in 0..60 {
-                    let mid = 0.5 * (lo + hi);
-                    if herm(mid) > zt {
-                        lo = mid;
-                    } else {
-                        hi = mid;
-                    }
-                }
-                let mut hs = h * 0.5 * (lo + hi);
-                for _ in 0..8 {
-                    let (yt, kt, _, st) = dp_step(&mut rhs, s, &y, &k0, hs, &mut stages);
-                    y_acc = yt;
-                    k_acc = kt;
-                    sol_acc = st;
-                    let miss = z(&yt, target) - zt;
-                    let slope = z(&kt, target);
-                    if miss.abs() <= 1e-4 * rel_tol * target || slope == 0.0 {
-                        break;
-                    }
-                    hs = (hs - miss / slope).clamp(1e-3 * h, h);
-                }
-                s_acc = s + hs;
+            if let Some((ya, ka, sa, s_end)) = locate_target(
+                &mut rhs,
+                (s, h, &y, &k0),
+                (&y_new, &k_new),
+                &mut stages,
+                target,
+                water,
+                rel_tol,
+            ) {
+                (y_acc, k_acc, sol_acc, s_acc) = (ya, ka, sa, s_end);
                 end_s = s_acc;
                 done = true;
             }
@@ -877,12 +904,10 @@ fn integrate_once(
     let l = length * end_s * end_s * end_s;
     let c_c_out = if streams.counter { c_c_at0 } else { c_c_end };
     // Concentrate outlet flow per unit inlet flow: at x = 0 for counter-current flow.
-    let concentrate_flow_ratio = if !water {
-        1.0
-    } else if streams.counter {
-        w_at0
-    } else {
-        w_at0 + rhs.ratio * (1.0 - y[6])
+    let concentrate_flow_ratio = match (water, streams.counter) {
+        (false, _) => 1.0,
+        (true, true) => w_at0,
+        (true, false) => w_at0 + rhs.ratio * (1.0 - y[6]),
     };
     Ok(ChannelResult {
         length_m: l,
@@ -941,6 +966,18 @@ pub(crate) fn outer_search(
     Ok((root, kept))
 }
 
+/// The counter-current concentrate at x = 0 (concentration, flow per unit inlet flow) from the
+/// diluate outlet's salt flow and flow ratio, by the salt and water balances.
+fn concentrate_at0(streams: Streams, ratio: f64, water: bool, salt: f64, flow: f64) -> (f64, f64) {
+    let n0 = streams.c_c_in + ratio * (streams.c_d_in - salt);
+    if water {
+        let w0 = 1.0 + ratio * (1.0 - flow);
+        (n0 / w0, w0)
+    } else {
+        (n0, 1.0)
+    }
+}
+
 /// Integrate the channel at cell-pair voltage `u` (V): `length` is the channel length
 /// (fixed mode) or the longest length searched (target mode).
 #[allow(clippy::too_many_arguments)]
@@ -960,15 +997,7 @@ pub fn integrate(
     // for co-current flow; for counter-current flow its outlet, which follows from the diluate
     // outlet's salt flow per unit inlet flow (`salt`) and flow ratio (`flow`) by the salt and
     // water balances.
-    let at0 = |salt: f64, flow: f64| -> (f64, f64) {
-        let n0 = streams.c_c_in + ratio * (streams.c_d_in - salt);
-        if water {
-            let w0 = 1.0 + ratio * (1.0 - flow);
-            (n0 / w0, w0)
-        } else {
-            (n0, 1.0)
-        }
-    };
+    let at0 = |salt: f64, flow: f64| concentrate_at0(streams, ratio, water, salt, flow);
     if !streams.counter {
         return integrate_once(
             cell,

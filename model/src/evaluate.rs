@@ -308,25 +308,7 @@ pub fn evaluate(
         + pumping_power(flow_c.pressure_drop_pa, q_c, e.pump_efficiency))
         / q_d_out
         / J_PER_KWH;
-    let w_min = if d.membranes.physics.water_transport {
-        minimum_work_flows(
-            w.temperature_k,
-            (q_d, q_c),
-            (c_f, w.concentrate_feed_concentration_mol_m3),
-            (q_d_out, q_c_out),
-            (c_out, run.c_c_out),
-        )
-    } else {
-        minimum_work_streams(
-            w.temperature_k,
-            q_d,
-            q_c,
-            c_f,
-            w.concentrate_feed_concentration_mol_m3,
-            c_out,
-            run.c_c_out,
-        )
-    } / J_PER_KWH;
+    let w_min = minimum_work_of(d, (q_d, q_c), (q_d_out, q_c_out), c_out, run.c_c_out) / J_PER_KWH;
     let specific = electrical + pumping;
 
     // Economics: one cell pair has one CEM and one AEM of area L W.
@@ -491,5 +473,37 @@ fn membranes_out(cell: &Cell, d: &Design, run: &ChannelResult) -> MembranesOut {
     MembranesOut {
         cem: one(&cell.mem_cem, d.membranes.cem_transport_number),
         aem: one(&cell.mem_aem, d.membranes.aem_transport_number),
+    }
+}
+
+/// The thermodynamic minimum for the streams of a run, J per m^3 of product (with the outlet
+/// flows when water crosses the membranes).
+fn minimum_work_of(
+    d: &Design,
+    (q_d, q_c): (f64, f64),
+    (q_d_out, q_c_out): (f64, f64),
+    c_out: f64,
+    c_c_out: f64,
+) -> f64 {
+    let w = &d.water;
+    let c_f = w.feed_concentration_mol_m3;
+    if d.membranes.physics.water_transport {
+        minimum_work_flows(
+            w.temperature_k,
+            (q_d, q_c),
+            (c_f, w.concentrate_feed_concentration_mol_m3),
+            (q_d_out, q_c_out),
+            (c_out, c_c_out),
+        )
+    } else {
+        minimum_work_streams(
+            w.temperature_k,
+            q_d,
+            q_c,
+            c_f,
+            w.concentrate_feed_concentration_mol_m3,
+            c_out,
+            c_c_out,
+        )
     }
 }

@@ -68,6 +68,45 @@ fn input(
     }
 }
 
+/// The membrane material data of a design against their ranges.
+fn check_materials(m: &crate::design::Membranes) -> Result<(), ModelError> {
+    for (prefix, mat) in [("cem", &m.physics.cem), ("aem", &m.physics.aem)] {
+        let name =
+            |field: &'static str, cem: &'static str| if prefix == "cem" { cem } else { field };
+        input(
+            name(
+                "aem_solution_resistance_share",
+                "cem_solution_resistance_share",
+            ),
+            mat.solution_resistance_share,
+            (0.0..=1.0).contains(&mat.solution_resistance_share),
+            "0 to 1",
+        )?;
+        input(
+            name("aem_salt_permeance_m_s", "cem_salt_permeance_m_s"),
+            mat.salt_permeance_m_s,
+            (0.0..=1e-4).contains(&mat.salt_permeance_m_s),
+            "0 to 1e-4 m/s",
+        )?;
+        input(
+            name(
+                "aem_water_permeability_m_s_pa",
+                "cem_water_permeability_m_s_pa",
+            ),
+            mat.water_permeability_m_s_pa,
+            (0.0..=1e-10).contains(&mat.water_permeability_m_s_pa),
+            "0 to 1e-10 m/(s Pa)",
+        )?;
+        input(
+            name("aem_water_transport_number", "cem_water_transport_number"),
+            mat.water_transport_number,
+            (0.0..=50.0).contains(&mat.water_transport_number),
+            "0 to 50 mol water per faraday",
+        )?;
+    }
+    Ok(())
+}
+
 /// Check a design and the options against their physical ranges.
 pub fn check_design(d: &Design, o: &Options) -> Result<(), ModelError> {
     let w = &d.water;
@@ -227,40 +266,7 @@ pub fn check_design(d: &Design, o: &Options) -> Result<(), ModelError> {
         m.open_fraction >= 0.01 && m.open_fraction <= 1.0,
         "0.01 to 1 (1 = unpatterned)",
     )?;
-    for (prefix, mat) in [("cem", &m.physics.cem), ("aem", &m.physics.aem)] {
-        let name =
-            |field: &'static str, cem: &'static str| if prefix == "cem" { cem } else { field };
-        input(
-            name(
-                "aem_solution_resistance_share",
-                "cem_solution_resistance_share",
-            ),
-            mat.solution_resistance_share,
-            (0.0..=1.0).contains(&mat.solution_resistance_share),
-            "0 to 1",
-        )?;
-        input(
-            name("aem_salt_permeance_m_s", "cem_salt_permeance_m_s"),
-            mat.salt_permeance_m_s,
-            (0.0..=1e-4).contains(&mat.salt_permeance_m_s),
-            "0 to 1e-4 m/s",
-        )?;
-        input(
-            name(
-                "aem_water_permeability_m_s_pa",
-                "cem_water_permeability_m_s_pa",
-            ),
-            mat.water_permeability_m_s_pa,
-            (0.0..=1e-10).contains(&mat.water_permeability_m_s_pa),
-            "0 to 1e-10 m/(s Pa)",
-        )?;
-        input(
-            name("aem_water_transport_number", "cem_water_transport_number"),
-            mat.water_transport_number,
-            (0.0..=50.0).contains(&mat.water_transport_number),
-            "0 to 50 mol water per faraday",
-        )?;
-    }
+    check_materials(m)?;
     let op = &d.operation;
     input(
         "velocity_m_s",

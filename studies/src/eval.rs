@@ -57,6 +57,65 @@ fn mass_transfer_rows(s: &mut String, t: &model::output::TransferOut) {
     );
 }
 
+/// The vortex wavelength and the pitch over it (or none without electroconvection).
+fn wavelength_rows(s: &mut String, f: &model::PerformanceOut, pitch_m: f64) {
+    match f.vortex_wavelength_m {
+        Some(l) => {
+            row(s, "vortex wavelength", sig(l * 1e6, 4), "um");
+            row(s, "pitch / vortex wavelength", sig(pitch_m / l, 4), "-");
+        }
+        None => row(
+            s,
+            "vortex wavelength",
+            "none".into(),
+            "(no electroconvection)",
+        ),
+    }
+}
+
+/// The membranes' transport numbers and area resistances at the diluate inlet and outlet.
+fn membrane_rows(s: &mut String, e: &model::Evaluation) {
+    s.push_str("\nMembranes (diluate inlet -> outlet)\n");
+    for (name, m) in [("CEM", &e.membranes.cem), ("AEM", &e.membranes.aem)] {
+        row(
+            s,
+            &format!("{name} transport number"),
+            format!(
+                "{} -> {}",
+                sig(m.transport_number_inlet, 4),
+                sig(m.transport_number_outlet, 4)
+            ),
+            "-",
+        );
+        row(
+            s,
+            &format!("{name} area resistance"),
+            format!(
+                "{} -> {}",
+                sig(m.area_resistance_inlet_Ohm_m2 * 1e4, 3),
+                sig(m.area_resistance_outlet_Ohm_m2 * 1e4, 3)
+            ),
+            "Ohm cm2",
+        );
+    }
+}
+
+/// The outlet flows (water crosses the membranes).
+fn flow_rows(s: &mut String, f: &model::PerformanceOut) {
+    row(
+        s,
+        "product flow (one cell pair)",
+        sig(f.diluate_outlet_flow_m3_s * 3.6e6, 4),
+        "L/h",
+    );
+    row(
+        s,
+        "concentrate outlet flow",
+        sig(f.concentrate_outlet_flow_m3_s * 3.6e6, 4),
+        "L/h",
+    );
+}
+
 fn row(out: &mut String, label: &str, value: String, unit: &str) {
     let line = format!("  {label:<34} {value:>12} {unit}");
     let _ = writeln!(out, "{}", line.trim_end());
@@ -363,29 +422,7 @@ pub fn design_sheet(input: &SheetInput) -> String {
 
     mass_transfer_rows(&mut s, &e.transfer);
 
-    s.push_str("\nMembranes (diluate inlet -> outlet)\n");
-    for (name, m) in [("CEM", &e.membranes.cem), ("AEM", &e.membranes.aem)] {
-        row(
-            &mut s,
-            &format!("{name} transport number"),
-            format!(
-                "{} -> {}",
-                sig(m.transport_number_inlet, 4),
-                sig(m.transport_number_outlet, 4)
-            ),
-            "-",
-        );
-        row(
-            &mut s,
-            &format!("{name} area resistance"),
-            format!(
-                "{} -> {}",
-                sig(m.area_resistance_inlet_Ohm_m2 * 1e4, 3),
-                sig(m.area_resistance_outlet_Ohm_m2 * 1e4, 3)
-            ),
-            "Ohm cm2",
-        );
-    }
+    membrane_rows(&mut s, e);
 
     let f = &e.performance;
     s.push_str("\nPerformance\n");
@@ -434,18 +471,7 @@ pub fn design_sheet(input: &SheetInput) -> String {
         sig(f.diluate_flow_m3_s * 3.6e6, 4),
         "L/h",
     );
-    row(
-        &mut s,
-        "product flow (one cell pair)",
-        sig(f.diluate_outlet_flow_m3_s * 3.6e6, 4),
-        "L/h",
-    );
-    row(
-        &mut s,
-        "concentrate outlet flow",
-        sig(f.concentrate_outlet_flow_m3_s * 3.6e6, 4),
-        "L/h",
-    );
+    flow_rows(&mut s, f);
     row(
         &mut s,
         "current efficiency",
@@ -482,23 +508,7 @@ pub fn design_sheet(input: &SheetInput) -> String {
         sig(f.active_area_fraction, 4),
         "- (channel mean, see below)",
     );
-    match f.vortex_wavelength_m {
-        Some(l) => {
-            row(&mut s, "vortex wavelength", sig(l * 1e6, 4), "um");
-            row(
-                &mut s,
-                "pitch / vortex wavelength",
-                sig(i.pitch_m / l, 4),
-                "-",
-            );
-        }
-        None => row(
-            &mut s,
-            "vortex wavelength",
-            "none".into(),
-            "(no electroconvection)",
-        ),
-    }
+    wavelength_rows(&mut s, f, i.pitch_m);
 
     let c = &e.economics;
     let cur = &study.currency;
