@@ -195,7 +195,7 @@ fn citation_scan_finds_paths_and_anchors() {
             ("formats.md".to_string(), None)
         ]
     );
-    assert!(citations("model.md and ../shared/x.md", false).is_empty());
+    assert!(citations("model.md and ../outside/x.md", false).is_empty());
     assert_eq!(citations("[a](references.md#water)", true).len(), 1);
     assert_eq!(slug(" Cell-pair balance"), "cell-pair-balance");
     assert_eq!(
